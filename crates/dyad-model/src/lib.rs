@@ -1,0 +1,1 @@
+//! dyad-model (to be written).

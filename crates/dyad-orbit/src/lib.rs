@@ -1,0 +1,1 @@
+//! dyad-orbit (to be written).

@@ -1,0 +1,1 @@
+//! dyad-report (to be written).

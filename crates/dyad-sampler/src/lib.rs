@@ -1,0 +1,1 @@
+//! dyad-sampler (to be written).
