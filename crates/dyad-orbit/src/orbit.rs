@@ -1,0 +1,195 @@
+//! Positions on the sky and the line-of-sight velocity shape of an orbit.
+//!
+//! Conventions (DESIGN.md), all in one place:
+//! - Offsets of the secondary from the primary: `ddec` towards North,
+//!   `dra` = dRA cos(Dec) towards East, in the unit of the semi-major axis.
+//! - Position angle theta from North through East: ddec = rho cos theta,
+//!   dra = rho sin theta; i < 90 deg makes theta increase with time.
+//! - Line of sight: z = r sin(nu + omega) sin i is the distance of the
+//!   secondary behind the primary, positive away from the observer, so that
+//!   the ascending node (nu + omega = 0, where z crosses zero upwards) is the
+//!   node where the secondary recedes, and radial velocity (positive
+//!   receding) is dz/dt. Together with (North, East) this is a left-handed
+//!   frame, as usual for visual binaries.
+//! - dz/dt = K (cos(nu + omega) + e cos omega) with
+//!   K = 2 pi a sin i / (P sqrt(1 - e^2)) (e.g. Hilditch 2001, eq. 2.45);
+//!   [`OrbitState::rv_shape`] is the bracket, so the relative velocity is
+//!   `K * rv_shape` with K from [`crate::laws::relative_semi_amplitude_kms`].
+
+use crate::elements::{CampbellElements, ThieleInnes};
+use crate::error::OrbitError;
+use crate::kepler::{EccentricAnomaly, KeplerSolver};
+use std::f64::consts::TAU;
+
+/// Offset of the secondary from the primary on the sky.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SkyOffset {
+    /// dRA* = dRA cos Dec, positive towards East.
+    pub dra: f64,
+    /// dDec, positive towards North.
+    pub ddec: f64,
+}
+
+impl SkyOffset {
+    /// The offset with separation `rho` at position angle `theta_rad` (N through E).
+    pub fn from_polar(rho: f64, theta_rad: f64) -> Self {
+        let (s, c) = theta_rad.sin_cos();
+        Self {
+            dra: rho * s,
+            ddec: rho * c,
+        }
+    }
+
+    /// Angular separation rho.
+    pub fn separation(&self) -> f64 {
+        self.dra.hypot(self.ddec)
+    }
+
+    /// Position angle in [0, 2 pi), measured from North through East.
+    pub fn position_angle_rad(&self) -> f64 {
+        let theta = self.dra.atan2(self.ddec);
+        if theta < 0.0 {
+            let t = theta + TAU;
+            // theta tiny negative would round to exactly 2 pi.
+            if t >= TAU {
+                0.0
+            } else {
+                t
+            }
+        } else {
+            theta
+        }
+    }
+}
+
+/// Position and line-of-sight velocity shape at one epoch (one Kepler solve).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct OrbitState {
+    /// dRA* (East), unit of the semi-major axis.
+    pub dra: f64,
+    /// dDec (North), unit of the semi-major axis.
+    pub ddec: f64,
+    /// cos(nu + omega) + e cos omega: relative velocity over K.
+    pub rv_shape: f64,
+}
+
+impl OrbitState {
+    /// The sky offset part of this state.
+    pub fn sky_offset(&self) -> SkyOffset {
+        SkyOffset {
+            dra: self.dra,
+            ddec: self.ddec,
+        }
+    }
+}
+
+/// An orbit ready for fast evaluation: everything that depends only on the
+/// elements is computed once in [`Orbit::new`].
+#[derive(Debug, Clone, Copy)]
+pub struct Orbit {
+    elements: CampbellElements,
+    thiele_innes: ThieleInnes,
+    solver: KeplerSolver,
+    inv_period: f64,
+    sqrt_1me2: f64,
+    cos_omega: f64,
+    sin_omega: f64,
+    e_cos_omega: f64,
+}
+
+/// 1.5 * 2^52: adding and subtracting it rounds to the nearest integer.
+const ROUND_MAGIC: f64 = 6_755_399_441_055_744.0;
+
+impl Orbit {
+    /// Checks the elements ([`CampbellElements::validate`]) and precomputes.
+    pub fn new(el: &CampbellElements) -> Result<Self, OrbitError> {
+        el.validate()?;
+        let (sin_omega, cos_omega) = el.omega_rad.sin_cos();
+        Ok(Self {
+            elements: *el,
+            thiele_innes: el.thiele_innes(),
+            solver: KeplerSolver::new(el.e)?,
+            inv_period: 1.0 / el.period_days,
+            sqrt_1me2: ((1.0 - el.e) * (1.0 + el.e)).sqrt(),
+            cos_omega,
+            sin_omega,
+            e_cos_omega: el.e * cos_omega,
+        })
+    }
+
+    /// The elements this orbit was built from.
+    pub fn elements(&self) -> &CampbellElements {
+        &self.elements
+    }
+
+    /// The Thiele-Innes constants of this orbit.
+    pub fn thiele_innes(&self) -> &ThieleInnes {
+        &self.thiele_innes
+    }
+
+    /// Mean anomaly 2 pi (t - T_peri) / P at `t_jd`, reduced to [-pi, pi].
+    ///
+    /// The reduction is done on the phase (t - T)/P, where taking away the
+    /// nearest integer is exact, so nothing is lost for any number of cycles.
+    #[inline]
+    pub fn mean_anomaly(&self, t_jd: f64) -> f64 {
+        let phase = (t_jd - self.elements.t_peri_jd) * self.inv_period;
+        let cycles = (phase + ROUND_MAGIC) - ROUND_MAGIC;
+        TAU * (phase - cycles)
+    }
+
+    /// The eccentric anomaly at `t_jd`.
+    #[inline]
+    pub fn eccentric_anomaly(&self, t_jd: f64) -> EccentricAnomaly {
+        self.solver.solve_reduced(self.mean_anomaly(t_jd))
+    }
+
+    /// Offset of the secondary from the primary at `t_jd`.
+    #[inline]
+    pub fn sky_offset(&self, t_jd: f64) -> SkyOffset {
+        let s = self.state(t_jd);
+        SkyOffset {
+            dra: s.dra,
+            ddec: s.ddec,
+        }
+    }
+
+    /// cos(nu + omega) + e cos omega at `t_jd` (relative velocity over K).
+    #[inline]
+    pub fn rv_shape(&self, t_jd: f64) -> f64 {
+        self.state(t_jd).rv_shape
+    }
+
+    /// Position and velocity shape at `t_jd`.
+    #[inline]
+    pub fn state(&self, t_jd: f64) -> OrbitState {
+        self.state_from_anomaly(&self.eccentric_anomaly(t_jd))
+    }
+
+    /// Position and velocity shape for a given eccentric anomaly.
+    #[inline]
+    pub fn state_from_anomaly(&self, ea: &EccentricAnomaly) -> OrbitState {
+        let e = self.elements.e;
+        // Elliptic rectangular coordinates in the orbital plane (units of a).
+        let x = ea.cos_e - e;
+        let y = self.sqrt_1me2 * ea.sin_e;
+        let ti = &self.thiele_innes;
+        // r/a = 1 - e cos E; cos nu = x / (r/a), sin nu = y / (r/a).
+        let r_over_a = 1.0 - e * ea.cos_e;
+        let rv_shape = (x * self.cos_omega - y * self.sin_omega) / r_over_a + self.e_cos_omega;
+        OrbitState {
+            dra: ti.b * x + ti.g * y,
+            ddec: ti.a * x + ti.f * y,
+            rv_shape,
+        }
+    }
+
+    /// States at many epochs without allocation: fills `out[k]` for
+    /// `times_jd[k]`. If the slices differ in length only the common
+    /// prefix is filled.
+    pub fn states_into(&self, times_jd: &[f64], out: &mut [OrbitState]) {
+        for (o, &t) in out.iter_mut().zip(times_jd) {
+            *o = self.state(t);
+        }
+    }
+}
