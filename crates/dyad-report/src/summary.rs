@@ -1,0 +1,296 @@
+//! Summary writers: plain text, Markdown and JSON, plus the samples CSV.
+//! Every writer is atomic (see [`crate::atomic`]).
+
+use crate::atomic::write_atomically;
+use crate::error::ReportError;
+use crate::input::{PosteriorDraws, RunMetadata};
+use crate::stats::{ParameterSummary, PosteriorSummary};
+use std::path::Path;
+
+/// Number of decimals that give the smaller 68 % half-width two significant
+/// digits (common practice for quoting uncertainties), capped to [0, 10].
+fn decimals_for(p: &ParameterSummary) -> Option<usize> {
+    let err = p.minus68().min(p.plus68());
+    if !(err.is_finite() && err > 0.0) {
+        return None;
+    }
+    let d = 1 - err.log10().floor() as i64;
+    Some(d.clamp(0, 10) as usize)
+}
+
+/// Formats `v` for a table with the decimals chosen for its parameter.
+fn fmt_value(v: f64, decimals: Option<usize>) -> String {
+    if !v.is_finite() {
+        return format!("{v}");
+    }
+    let a = v.abs();
+    match decimals {
+        _ if a >= 1e7 => format!("{v:.4e}"),
+        Some(d) if a != 0.0 && a < 1e-4 && d > 8 => format!("{v:.3e}"),
+        Some(d) => format!("{v:.d$}"),
+        None => {
+            if a != 0.0 && a < 1e-3 {
+                format!("{v:.4e}")
+            } else {
+                // Four significant digits.
+                let d = (3 - a.log10().floor() as i64).clamp(0, 10) as usize;
+                format!("{v:.d$}")
+            }
+        }
+    }
+}
+
+/// The formatted cells of one parameter row.
+struct Row {
+    name: String,
+    unit: String,
+    median: String,
+    minus: String,
+    plus: String,
+    interval95: String,
+    map: String,
+}
+
+fn row_of(p: &ParameterSummary) -> Row {
+    let d = decimals_for(p);
+    Row {
+        name: p.info.name.clone(),
+        unit: if p.info.unit.is_empty() {
+            "-".to_string()
+        } else {
+            p.info.unit.clone()
+        },
+        median: fmt_value(p.median, d),
+        minus: format!("-{}", fmt_value(p.minus68(), d)),
+        plus: format!("+{}", fmt_value(p.plus68(), d)),
+        interval95: format!("[{}, {}]", fmt_value(p.q95[0], d), fmt_value(p.q95[1], d)),
+        map: fmt_value(p.map, d),
+    }
+}
+
+const HEADERS: [&str; 7] = [
+    "parameter",
+    "unit",
+    "median",
+    "-68%",
+    "+68%",
+    "95% interval",
+    "MAP",
+];
+
+fn row_cells(r: &Row) -> [&str; 7] {
+    [
+        &r.name,
+        &r.unit,
+        &r.median,
+        &r.minus,
+        &r.plus,
+        &r.interval95,
+        &r.map,
+    ]
+}
+
+/// Renders the plain-text summary.
+pub fn text_summary(meta: &RunMetadata, summary: &PosteriorSummary) -> String {
+    let mut out = String::new();
+    let title = if meta.title.is_empty() {
+        "dyad run summary"
+    } else {
+        &meta.title
+    };
+    out.push_str(title);
+    out.push('\n');
+    out.push_str(&"=".repeat(title.chars().count()));
+    out.push('\n');
+    let key_width = meta
+        .entries
+        .iter()
+        .map(|(k, _)| k.chars().count())
+        .max()
+        .unwrap_or(0);
+    for (k, v) in &meta.entries {
+        out.push_str(&format!("{k:<key_width$} : {v}\n"));
+    }
+    out.push_str(&format!(
+        "\nPosterior from {} draws; MAP = draw {} (log-posterior {:.4}).\n",
+        summary.n_draws, summary.map_draw, summary.map_log_posterior
+    ));
+    out.push_str("Intervals are equal-tailed (68 %: 16th-84th, 95 %: 2.5th-97.5th percentile);\n");
+    out.push_str(&format!("quantiles: {}.\n", summary.quantile_rule));
+    out.push_str("Angles are summarised on the circle (window centred on the circular mean).\n\n");
+
+    let rows: Vec<Row> = summary.parameters.iter().map(row_of).collect();
+    let mut widths: [usize; 7] = HEADERS.map(|h| h.chars().count());
+    for r in &rows {
+        for (w, c) in widths.iter_mut().zip(row_cells(r)) {
+            *w = (*w).max(c.chars().count());
+        }
+    }
+    let line = |cells: [&str; 7]| -> String {
+        let mut s = String::new();
+        for (i, (c, w)) in cells.iter().zip(widths).enumerate() {
+            if i > 0 {
+                s.push_str("  ");
+            }
+            // Names left-aligned, numbers right-aligned.
+            if i < 2 {
+                s.push_str(&format!("{c:<w$}"));
+            } else {
+                s.push_str(&format!("{c:>w$}"));
+            }
+        }
+        s.trim_end().to_string() + "\n"
+    };
+    out.push_str(&line(HEADERS));
+    let total: usize = widths.iter().sum::<usize>() + 2 * (widths.len() - 1);
+    out.push_str(&"-".repeat(total));
+    out.push('\n');
+    for r in &rows {
+        out.push_str(&line(row_cells(r)));
+    }
+    out
+}
+
+/// Escapes the characters that would break a Markdown table cell.
+fn md_cell(s: &str) -> String {
+    s.replace('|', "\\|").replace('\n', " ")
+}
+
+/// Renders the Markdown summary.
+pub fn markdown_summary(meta: &RunMetadata, summary: &PosteriorSummary) -> String {
+    let mut out = String::new();
+    let title = if meta.title.is_empty() {
+        "dyad run summary"
+    } else {
+        &meta.title
+    };
+    out.push_str(&format!("# {}\n\n", md_cell(title)));
+    for (k, v) in &meta.entries {
+        out.push_str(&format!("- **{}**: {}\n", md_cell(k), md_cell(v)));
+    }
+    if !meta.entries.is_empty() {
+        out.push('\n');
+    }
+    out.push_str(&format!(
+        "Posterior from {} draws; MAP is draw {} (log-posterior {:.4}). \
+         Intervals are equal-tailed (68 %: 16th–84th, 95 %: 2.5th–97.5th percentile; {}). \
+         Angles are summarised on the circle.\n\n",
+        summary.n_draws, summary.map_draw, summary.map_log_posterior, summary.quantile_rule
+    ));
+    out.push_str("| Parameter | Unit | Median | −68% | +68% | 95% interval | MAP |\n");
+    out.push_str("|:--|:--|--:|--:|--:|--:|--:|\n");
+    for p in &summary.parameters {
+        let r = row_of(p);
+        out.push_str(&format!(
+            "| {} | {} | {} | {} | {} | {} | {} |\n",
+            md_cell(&r.name),
+            md_cell(&r.unit),
+            r.median,
+            r.minus.replacen('-', "−", 1),
+            r.plus,
+            r.interval95,
+            r.map
+        ));
+    }
+    out
+}
+
+/// Builds the JSON summary document.
+pub fn json_summary(
+    meta: &RunMetadata,
+    summary: &PosteriorSummary,
+    diagnostics: &serde_json::Value,
+) -> Result<serde_json::Value, ReportError> {
+    let metadata: Vec<serde_json::Value> = meta
+        .entries
+        .iter()
+        .map(|(k, v)| serde_json::json!({ "key": k, "value": v }))
+        .collect();
+    Ok(serde_json::json!({
+        "title": meta.title,
+        "metadata": metadata,
+        "n_draws": summary.n_draws,
+        "map_draw": summary.map_draw,
+        "map_log_posterior": summary.map_log_posterior,
+        "quantile_rule": summary.quantile_rule,
+        "parameters": serde_json::to_value(&summary.parameters)?,
+        "diagnostics": diagnostics,
+    }))
+}
+
+fn write_string(path: &Path, content: &str) -> Result<(), ReportError> {
+    write_atomically(path, |w| {
+        w.write_all(content.as_bytes())
+            .map_err(|e| ReportError::io(path, e))
+    })
+}
+
+/// Writes the plain-text summary to `path` (atomically).
+pub fn write_text_summary(
+    path: &Path,
+    meta: &RunMetadata,
+    summary: &PosteriorSummary,
+) -> Result<(), ReportError> {
+    write_string(path, &text_summary(meta, summary))
+}
+
+/// Writes the Markdown summary to `path` (atomically).
+pub fn write_markdown_summary(
+    path: &Path,
+    meta: &RunMetadata,
+    summary: &PosteriorSummary,
+) -> Result<(), ReportError> {
+    write_string(path, &markdown_summary(meta, summary))
+}
+
+/// Writes the JSON summary to `path` (atomically). Non-finite numbers
+/// become `null` (JSON has no NaN).
+pub fn write_json_summary(
+    path: &Path,
+    meta: &RunMetadata,
+    summary: &PosteriorSummary,
+    diagnostics: &serde_json::Value,
+) -> Result<(), ReportError> {
+    let doc = json_summary(meta, summary, diagnostics)?;
+    let mut text = serde_json::to_string_pretty(&doc)?;
+    text.push('\n');
+    write_string(path, &text)
+}
+
+/// Writes the posterior samples CSV to `path` (atomically): a header of
+/// [`crate::ParameterInfo::column_name`] columns followed by
+/// `log_posterior`, then one row per draw. Floats use Rust's shortest
+/// round-trip representation (full precision); non-finite values are written
+/// `NaN`, `inf`, `-inf`, which pandas.read_csv parses as floats.
+pub fn write_samples_csv(path: &Path, draws: &PosteriorDraws) -> Result<(), ReportError> {
+    draws.validate()?;
+    let mut names: Vec<String> = draws.params.iter().map(|p| p.column_name()).collect();
+    names.push("log_posterior".to_string());
+    for (i, n) in names.iter().enumerate() {
+        if n.is_empty() {
+            return Err(ReportError::InvalidInput(format!(
+                "parameter {i} has an empty column name"
+            )));
+        }
+        if names[..i].contains(n) {
+            return Err(ReportError::InvalidInput(format!(
+                "duplicate column name {n}"
+            )));
+        }
+    }
+    let n_params = draws.n_params();
+    write_atomically(path, |w| {
+        let io = |e| ReportError::io(path, e);
+        writeln!(w, "{}", names.join(",")).map_err(io)?;
+        let mut line = String::with_capacity(24 * (n_params + 1));
+        for (d, lp) in draws.log_posterior.iter().enumerate() {
+            line.clear();
+            for v in &draws.values[d * n_params..(d + 1) * n_params] {
+                line.push_str(&format!("{v:?},"));
+            }
+            line.push_str(&format!("{lp:?}\n"));
+            w.write_all(line.as_bytes()).map_err(io)?;
+        }
+        Ok(())
+    })
+}
