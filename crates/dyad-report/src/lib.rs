@@ -41,12 +41,12 @@ mod error;
 mod input;
 pub mod plots;
 pub mod stats;
-mod summary;
+pub(crate) mod summary;
 
 pub use atomic::{prepare_run_folder, write_atomically};
 pub use error::ReportError;
 pub use input::{ParameterInfo, ParameterKind, PosteriorDraws, RunMetadata};
-pub use plots::{plot_corner, PlotFiles};
+pub use plots::{plot_corner, plot_sky, PlotFiles, SkyMeasurement, SkyPlotInput, SkyPrediction};
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{
     json_summary, markdown_summary, text_summary, write_json_summary, write_markdown_summary,

@@ -9,7 +9,7 @@ use std::path::Path;
 
 /// Number of decimals that give the smaller 68 % half-width two significant
 /// digits (common practice for quoting uncertainties), capped to [0, 10].
-fn decimals_for(p: &ParameterSummary) -> Option<usize> {
+pub(crate) fn decimals_for(p: &ParameterSummary) -> Option<usize> {
     let err = p.minus68().min(p.plus68());
     if !(err.is_finite() && err > 0.0) {
         return None;
@@ -19,7 +19,7 @@ fn decimals_for(p: &ParameterSummary) -> Option<usize> {
 }
 
 /// Formats `v` for a table with the decimals chosen for its parameter.
-fn fmt_value(v: f64, decimals: Option<usize>) -> String {
+pub(crate) fn fmt_value(v: f64, decimals: Option<usize>) -> String {
     if !v.is_finite() {
         return format!("{v}");
     }

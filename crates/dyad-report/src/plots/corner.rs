@@ -1,7 +1,9 @@
 //! Corner plot: 1-D histograms on the diagonal, smoothed 2-D densities with
 //! 1 and 2 sigma contours below it.
 
-use super::density::{contour_segments, mass_levels, smoothed_histogram, SIGMA_MASS_FRACTIONS};
+use super::density::{
+    contour_segments, fill_runs, mass_levels, smoothed_histogram, SIGMA_MASS_FRACTIONS,
+};
 use super::{
     dashed_vertical, font, padded_range, render, tick_formatter, tint, Figure, PlotFiles,
     PlotResultExt, BLUE, GREY, INK, SKY_BLUE,
@@ -9,6 +11,7 @@ use super::{
 use crate::error::ReportError;
 use crate::input::{ParameterInfo, PosteriorDraws};
 use crate::stats::{prepared_values, summarise_values};
+use crate::summary::{decimals_for, fmt_value};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::path::Path;
@@ -18,6 +21,7 @@ const BINS_1D: usize = 40;
 const BINS_2D: usize = 40;
 const SMOOTH_BINS: f64 = 1.2;
 const MAX_OUTLIER_DOTS: usize = 4000;
+const FILL_SUBDIVISION: usize = 4;
 
 struct Column {
     info: ParameterInfo,
@@ -36,6 +40,7 @@ struct CornerFigure {
 }
 
 const TITLE_H: u32 = 56;
+const LEFT_PAD: u32 = 18;
 
 /// Corner plot of the parameters named in `names` (in that order, at least
 /// one), written as `<stem>.png` and `<stem>.svg`. Angles are unwrapped
@@ -63,7 +68,8 @@ pub fn plot_corner(
         let values: Vec<f64> = raw.iter().map(|&v| window.apply(v)).collect();
         let s = summarise_values(&info, &raw, raw[0])?;
         let range = padded_range(&values, 0.05);
-        let f = tick_formatter(s.plus68().min(s.minus68()) * 10.0, 1);
+        let d = decimals_for(&s);
+        let f = |v: f64| fmt_value(v, d);
         let unit = if info.unit.is_empty() {
             String::new()
         } else {
@@ -72,9 +78,9 @@ pub fn plot_corner(
         let headline = format!(
             "{} = {} −{} +{}{}",
             info.label,
-            f(&s.median),
-            f(&s.minus68()),
-            f(&s.plus68()),
+            f(s.median),
+            f(s.minus68()),
+            f(s.plus68()),
             unit
         );
         columns.push(Column {
@@ -103,13 +109,16 @@ impl Figure for CornerFigure {
     fn size(&self) -> (u32, u32) {
         let k = self.columns.len() as u32;
         (
-            self.left + k * self.panel + 20,
+            LEFT_PAD + self.left + k * self.panel + 20,
             TITLE_H + k * (self.panel + self.top) + self.bottom,
         )
     }
 
     fn draw<DB: DrawingBackend>(&self, root: &DrawingArea<DB, Shift>) -> Result<(), ReportError> {
-        let area = root.titled(&self.title, font(30.0)).ctx(NAME)?;
+        let area = root
+            .titled(&self.title, font(30.0))
+            .ctx(NAME)?
+            .margin(0, 0, LEFT_PAD, 0);
         let k = self.columns.len();
         let (p, top) = (self.panel as i32, self.top as i32);
         let xs: Vec<i32> = (1..=k).map(|c| self.left as i32 + c as i32 * p).collect();
@@ -266,26 +275,13 @@ impl CornerFigure {
         chart
             .draw_series(outside.map(|pt| Circle::new(pt, 1, GREY.mix(0.6).filled())))
             .ctx(NAME)?;
-        let (dx, dy) = (grid.dx(), grid.dy());
         let shades = [tint(BLUE, 0.55), tint(SKY_BLUE, 0.4)];
-        let mut bins = Vec::new();
-        for iy in 0..grid.ny {
-            for ix in 0..grid.nx {
-                let z = grid.at(ix, iy);
-                let shade = if z >= levels[0] {
-                    shades[0]
-                } else if z >= levels[1] {
-                    shades[1]
-                } else {
-                    continue;
-                };
-                let (x0, y0) = (grid.x.0 + ix as f64 * dx, grid.y.0 + iy as f64 * dy);
-                bins.push(Rectangle::new(
-                    [(x0, y0), (x0 + dx, y0 + dy)],
-                    shade.filled(),
-                ));
-            }
-        }
+        let bins =
+            fill_runs(&grid, &levels, FILL_SUBDIVISION)
+                .into_iter()
+                .map(|(x0, x1, y0, y1, k)| {
+                    Rectangle::new([(x0, y0), (x1, y1)], shades[k.min(1)].filled())
+                });
         chart.draw_series(bins).ctx(NAME)?;
         for (level, width) in levels.iter().zip([2, 1]) {
             if level.is_finite() {

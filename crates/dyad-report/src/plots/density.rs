@@ -210,6 +210,61 @@ pub fn contour_segments(grid: &Grid2, level: f64) -> Vec<[(f64, f64); 2]> {
     out
 }
 
+/// Bilinear interpolation between bin centres (zero beyond the border),
+/// consistent with the linear interpolation marching squares uses.
+pub fn interpolate(grid: &Grid2, x: f64, y: f64) -> f64 {
+    let fx = (x - grid.x.0) / grid.dx() - 0.5;
+    let fy = (y - grid.y.0) / grid.dy() - 0.5;
+    let (ix, iy) = (fx.floor(), fy.floor());
+    let (tx, ty) = (fx - ix, fy - iy);
+    let (ix, iy) = (ix as isize, iy as isize);
+    let v = |i: isize, j: isize| -> f64 {
+        if i < 0 || j < 0 || i >= grid.nx as isize || j >= grid.ny as isize {
+            0.0
+        } else {
+            grid.at(i as usize, j as usize)
+        }
+    };
+    (1.0 - ty) * ((1.0 - tx) * v(ix, iy) + tx * v(ix + 1, iy))
+        + ty * ((1.0 - tx) * v(ix, iy + 1) + tx * v(ix + 1, iy + 1))
+}
+
+/// A horizontal strip of the filled level regions: `(x0, x1, y0, y1, k)`
+/// where k is the index of the highest level reached (0 = innermost).
+pub type FillRun = (f64, f64, f64, f64, usize);
+
+/// Filled level regions on a grid `sub` times finer than the histogram,
+/// merged into horizontal runs so the plot stays small. `levels` must be
+/// in decreasing order (innermost first).
+pub fn fill_runs(grid: &Grid2, levels: &[f64], sub: usize) -> Vec<FillRun> {
+    let (nx, ny) = (grid.nx * sub, grid.ny * sub);
+    let (dx, dy) = (grid.dx() / sub as f64, grid.dy() / sub as f64);
+    let mut runs = Vec::new();
+    for j in 0..ny {
+        let y0 = grid.y.0 + j as f64 * dy;
+        let mut current: Option<(usize, usize)> = None; // (start column, level)
+        for i in 0..=nx {
+            let k = if i < nx {
+                let z = interpolate(grid, grid.x.0 + (i as f64 + 0.5) * dx, y0 + 0.5 * dy);
+                levels.iter().position(|&l| z >= l)
+            } else {
+                None
+            };
+            match (current, k) {
+                (Some((_, ck)), Some(k)) if ck == k => {}
+                (c, k) => {
+                    if let Some((start, ck)) = c {
+                        let x0 = grid.x.0 + start as f64 * dx;
+                        runs.push((x0, grid.x.0 + i as f64 * dx, y0, y0 + dy, ck));
+                    }
+                    current = k.map(|k| (i, k));
+                }
+            }
+        }
+    }
+    runs
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

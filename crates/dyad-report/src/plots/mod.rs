@@ -13,6 +13,8 @@ mod ranks;
 mod sky;
 mod velocity;
 
+pub use sky::{plot_sky, SkyMeasurement, SkyPlotInput, SkyPrediction};
+
 pub use corner::plot_corner;
 
 use crate::atomic::{commit_temp, temp_path_for, write_atomically};
@@ -289,6 +291,72 @@ pub(crate) enum Corner {
     BottomRight,
 }
 
+/// Pixel size of the legend box for `entries`.
+pub(crate) fn legend_size<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    entries: &[(LegendGlyph, String)],
+    size: f64,
+    plot: &'static str,
+) -> Result<(i32, i32), ReportError> {
+    let style = font(size);
+    let line_h = (size * 1.35).round() as i32;
+    let glyph_w = (size * 2.0).round() as i32;
+    let pad = (size * 0.5).round() as i32;
+    let mut text_w = 0;
+    for (_, t) in entries {
+        let (w, _) = area.estimate_text_size(t, &style).ctx(plot)?;
+        text_w = text_w.max(w as i32);
+    }
+    Ok((
+        pad * 3 + glyph_w + text_w,
+        pad * 2 + line_h * entries.len() as i32,
+    ))
+}
+
+fn corner_origin(
+    corner: Corner,
+    (bw, bh): (i32, i32),
+    (aw, ah): (i32, i32),
+    inset: i32,
+) -> (i32, i32) {
+    let x0 = match corner {
+        Corner::TopLeft | Corner::BottomLeft => inset,
+        _ => aw - inset - bw,
+    };
+    let y0 = match corner {
+        Corner::TopLeft | Corner::TopRight => inset,
+        _ => ah - inset - bh,
+    };
+    (x0, y0)
+}
+
+/// The corner (in order of preference) whose legend box covers the fewest
+/// of `points` (pixel coordinates relative to the area).
+pub(crate) fn least_crowded_corner(
+    points: &[(i32, i32)],
+    box_size: (i32, i32),
+    area_size: (i32, i32),
+    inset: i32,
+    preference: &[Corner],
+) -> Corner {
+    let mut best = (
+        usize::MAX,
+        preference.first().copied().unwrap_or(Corner::TopLeft),
+    );
+    for &c in preference {
+        let (x0, y0) = corner_origin(c, box_size, area_size, inset);
+        let (x1, y1) = (x0 + box_size.0, y0 + box_size.1);
+        let n = points
+            .iter()
+            .filter(|p| p.0 >= x0 - 4 && p.0 <= x1 + 4 && p.1 >= y0 - 4 && p.1 <= y1 + 4)
+            .count();
+        if n < best.0 {
+            best = (n, c);
+        }
+    }
+    best.1
+}
+
 /// Draws a legend box of `entries` in a corner of `area` (pixel
 /// coordinates relative to the area), with `inset` pixels from the edges.
 pub(crate) fn draw_legend<DB: DrawingBackend>(
@@ -305,24 +373,10 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
     let style = font(size);
     let line_h = (size * 1.35).round() as i32;
     let glyph_w = (size * 2.0).round() as i32;
-    let mut text_w = 0;
-    for (_, t) in entries {
-        let (w, _) = area.estimate_text_size(t, &style).ctx(plot)?;
-        text_w = text_w.max(w as i32);
-    }
     let pad = (size * 0.5).round() as i32;
-    let box_w = pad * 3 + glyph_w + text_w;
-    let box_h = pad * 2 + line_h * entries.len() as i32;
+    let (box_w, box_h) = legend_size(area, entries, size, plot)?;
     let (aw, ah) = area.dim_in_pixel();
-    let (aw, ah) = (aw as i32, ah as i32);
-    let x0 = match corner {
-        Corner::TopLeft | Corner::BottomLeft => inset,
-        _ => aw - inset - box_w,
-    };
-    let y0 = match corner {
-        Corner::TopLeft | Corner::TopRight => inset,
-        _ => ah - inset - box_h,
-    };
+    let (x0, y0) = corner_origin(corner, (box_w, box_h), (aw as i32, ah as i32), inset);
     area.draw(&Rectangle::new(
         [(x0, y0), (x0 + box_w, y0 + box_h)],
         WHITE.mix(0.9).filled(),

@@ -1,0 +1,203 @@
+//! Every plot on synthetic inputs: writes PNG + SVG, the PNG decodes, has
+//! the stated size and is not blank. The PNGs are kept under
+//! `target/plot-previews/` (CARGO_TARGET_TMPDIR) for looking at by eye.
+
+use dyad_report::*;
+use std::path::{Path, PathBuf};
+
+/// Deterministic pseudo-random numbers (SplitMix64, Steele, Lea & Flood
+/// 2014, "Fast splittable pseudorandom number generators"), so the test
+/// inputs need no RNG crate.
+struct SplitMix(u64);
+impl SplitMix {
+    fn next_u64(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+    fn uniform(&mut self) -> f64 {
+        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
+    }
+    /// Standard normal by Box-Muller.
+    fn normal(&mut self) -> f64 {
+        let u1 = self.uniform().max(1e-300);
+        let u2 = self.uniform();
+        (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
+    }
+}
+
+fn preview_dir() -> PathBuf {
+    let d = Path::new(env!("CARGO_TARGET_TMPDIR")).join("plot-previews");
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+/// Decodes the PNG, checks its size and that it is not blank (grey-level
+/// variance above a threshold), checks the SVG is an SVG document.
+fn check_files(files: &PlotFiles, width: u32, height: u32) {
+    let img = image::open(&files.png).expect("PNG decodes").to_rgb8();
+    assert_eq!(img.dimensions(), (width, height), "{}", files.png.display());
+    let n = (width * height) as f64;
+    let (mut s, mut s2) = (0.0, 0.0);
+    let mut non_white = 0usize;
+    for p in img.pixels() {
+        let g = (p[0] as f64 + p[1] as f64 + p[2] as f64) / 3.0;
+        s += g;
+        s2 += g * g;
+        if g < 250.0 {
+            non_white += 1;
+        }
+    }
+    let var = s2 / n - (s / n).powi(2);
+    assert!(
+        var > 100.0,
+        "{} looks blank (variance {var})",
+        files.png.display()
+    );
+    assert!(
+        non_white as f64 > 0.02 * n,
+        "{}: too little ink",
+        files.png.display()
+    );
+    let svg = std::fs::read_to_string(&files.svg).unwrap();
+    assert!(svg.contains("<svg") && svg.trim_end().ends_with("</svg>"));
+    assert!(svg.contains("<text"), "SVG has text");
+    // No temporary files of this plot left beside the outputs (other
+    // tests write into the same folder concurrently, so match our names).
+    let dir = files.png.parent().unwrap();
+    let own = format!(".{}", files.png.file_name().unwrap().to_string_lossy());
+    let own_svg = format!(".{}", files.svg.file_name().unwrap().to_string_lossy());
+    for e in std::fs::read_dir(dir).unwrap() {
+        let name = e.unwrap().file_name().to_string_lossy().into_owned();
+        let ours = name.starts_with(&own) || name.starts_with(&own_svg);
+        assert!(!(ours && name.contains(".tmp-")), "temp file left: {name}");
+    }
+}
+
+fn png_size(path: &Path) -> (u32, u32) {
+    image::image_dimensions(path).unwrap()
+}
+
+/// Correlated draws of (m1, m2, omega) with omega straddling 0/360.
+fn corner_draws(n: usize) -> PosteriorDraws {
+    let mut rng = SplitMix(7);
+    let mut values = Vec::with_capacity(4 * n);
+    let mut lp = Vec::with_capacity(n);
+    for _ in 0..n {
+        let (z1, z2, z3) = (rng.normal(), rng.normal(), rng.normal());
+        let m1 = 1.32 + 0.06 * z1;
+        let m2 = 0.81 + 0.04 * (0.7 * z1 + 0.71 * z2);
+        let omega = (3.0 + 6.0 * z3).rem_euclid(360.0);
+        values.extend([m1, m2, omega, m1 + m2]);
+        lp.push(-0.5 * (z1 * z1 + z2 * z2 + z3 * z3));
+    }
+    PosteriorDraws::new(
+        vec![
+            ParameterInfo::linear("m1", "M☉", "M₁"),
+            ParameterInfo::linear("m2", "M☉", "M₂"),
+            ParameterInfo::angle("omega", "deg", "ω", 360.0),
+            ParameterInfo::linear("m_total", "M☉", "M₁+M₂"),
+        ],
+        values,
+        lp,
+    )
+    .unwrap()
+}
+
+#[test]
+fn corner_plot_writes_png_and_svg() {
+    let dir = preview_dir();
+    let d = corner_draws(6000);
+    let files = plot_corner(
+        &dir.join("corner"),
+        "Posterior of the invented system Tarn-7",
+        &d,
+        &["m1", "m2", "omega"],
+    )
+    .unwrap();
+    let (w, h) = png_size(&files.png);
+    assert!(w > 600 && h > 600);
+    check_files(&files, w, h);
+    assert!(plot_corner(&dir.join("bad"), "x", &d, &["nope"]).is_err());
+}
+
+/// Relative orbit by the Thiele-Innes formulas of DESIGN.md, Kepler's
+/// equation by Newton iteration.
+fn orbit_track(a: f64, e: f64, i: f64, w: f64, node: f64, n: usize) -> Vec<(f64, f64)> {
+    let (ca, cb, cf, cg) = (
+        a * (w.cos() * node.cos() - w.sin() * node.sin() * i.cos()),
+        a * (w.cos() * node.sin() + w.sin() * node.cos() * i.cos()),
+        a * (-w.sin() * node.cos() - w.cos() * node.sin() * i.cos()),
+        a * (-w.sin() * node.sin() + w.cos() * node.cos() * i.cos()),
+    );
+    (0..=n)
+        .map(|k| {
+            let m = std::f64::consts::TAU * k as f64 / n as f64;
+            let mut ea = m;
+            for _ in 0..30 {
+                ea -= (ea - e * ea.sin() - m) / (1.0 - e * ea.cos());
+            }
+            let x = ea.cos() - e;
+            let y = (1.0 - e * e).sqrt() * ea.sin();
+            (cb * x + cg * y, ca * x + cf * y) // (dRA*, dDec)
+        })
+        .collect()
+}
+
+#[test]
+fn sky_plot_writes_png_and_svg() {
+    let dir = preview_dir();
+    let mut rng = SplitMix(11);
+    let deg = std::f64::consts::PI / 180.0;
+    let best = orbit_track(120.0, 0.45, 50.0 * deg, 60.0 * deg, 130.0 * deg, 300);
+    let tracks: Vec<Vec<(f64, f64)>> = (0..100)
+        .map(|_| {
+            orbit_track(
+                120.0 + 4.0 * rng.normal(),
+                0.45 + 0.02 * rng.normal(),
+                (50.0 + 2.0 * rng.normal()) * deg,
+                (60.0 + 3.0 * rng.normal()) * deg,
+                (130.0 + 2.0 * rng.normal()) * deg,
+                300,
+            )
+        })
+        .collect();
+    let measurements: Vec<SkyMeasurement> = (0..9)
+        .map(|k| {
+            let p = best[k * 20];
+            let (sx, sy, rho) = (2.0 + k as f64 * 0.3, 3.0, 0.4);
+            SkyMeasurement {
+                dra: p.0 + sx * rng.normal(),
+                ddec: p.1 + sy * rng.normal(),
+                cov: [[sx * sx, rho * sx * sy], [rho * sx * sy, sy * sy]],
+                label: format!("epoch {k}"),
+            }
+        })
+        .collect();
+    let predictions = vec![
+        SkyPrediction {
+            dra: best[230].0,
+            ddec: best[230].1,
+            cov: Some([[9.0, 0.0], [0.0, 16.0]]),
+            label: "2027.5".into(),
+        },
+        SkyPrediction {
+            dra: best[260].0,
+            ddec: best[260].1,
+            cov: None,
+            label: "2028.5".into(),
+        },
+    ];
+    let input = SkyPlotInput {
+        title: "Relative orbit of Tarn-7 B around A".into(),
+        measurements,
+        tracks,
+        best_track: Some(best),
+        predictions,
+    };
+    let files = plot_sky(&dir.join("sky"), &input).unwrap();
+    check_files(&files, 1000, 1060);
+    assert!(plot_sky(&dir.join("empty"), &SkyPlotInput::default()).is_err());
+}
