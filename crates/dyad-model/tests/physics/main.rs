@@ -1,0 +1,6 @@
+//! Tests of the model physics: likelihood, parameter maps and Jacobians,
+//! configuration errors, simulation and the starting-point search. One test
+//! binary (submodules) to keep link time down.
+
+mod common;
+mod likelihood;
