@@ -1,0 +1,139 @@
+//! Walkers, the red-blue ensemble update and its parallel evaluation.
+
+use rand::Rng;
+use rayon::prelude::*;
+
+use crate::density::LogDensity;
+use crate::moves::{propose, MoveMixture, Scratch};
+use crate::rng::StreamRng;
+
+/// One walker: position, cached log-densities, its own random stream,
+/// preallocated proposal buffers and acceptance book-keeping.
+#[derive(Clone, Debug)]
+pub(crate) struct Walker {
+    pub position: Vec<f64>,
+    pub log_prior: f64,
+    pub log_likelihood: f64,
+    pub rng: StreamRng,
+    pub scratch: Scratch,
+    pub accepted: u64,
+    pub proposed: u64,
+    /// Consecutive rejections up to now.
+    pub rejection_run: u64,
+    /// Longest run of consecutive rejections seen.
+    pub longest_rejection_run: u64,
+}
+
+/// The tempered log target log_prior + beta * log_likelihood, with beta = 0
+/// giving the prior exactly (no 0 * inf).
+#[inline]
+pub(crate) fn tempered(beta: f64, log_prior: f64, log_likelihood: f64) -> f64 {
+    if beta == 0.0 {
+        log_prior
+    } else {
+        log_prior + beta * log_likelihood
+    }
+}
+
+impl Walker {
+    /// One Metropolis-Hastings update against the fixed complementary half.
+    #[inline]
+    fn advance<D: LogDensity + ?Sized>(
+        &mut self,
+        complement: &[Walker],
+        moves: &MoveMixture,
+        density: &D,
+        beta: f64,
+    ) {
+        self.proposed += 1;
+        let log_factor = propose(
+            moves,
+            &self.position,
+            complement.len(),
+            |j| complement[j].position.as_slice(),
+            &mut self.rng,
+            &mut self.scratch,
+        );
+        let u: f64 = self.rng.gen();
+        let y = &self.scratch.proposal;
+        let lp = density.log_prior(y);
+        let mut accepted = false;
+        let mut ll = f64::NEG_INFINITY;
+        // -inf or NaN prior: outside the support, likelihood not evaluated.
+        if lp > f64::NEG_INFINITY && lp < f64::INFINITY {
+            ll = density.log_likelihood(y);
+            if ll > f64::NEG_INFINITY && ll < f64::INFINITY {
+                let ln_ratio = log_factor + tempered(beta, lp, ll)
+                    - tempered(beta, self.log_prior, self.log_likelihood);
+                accepted = u.ln() < ln_ratio;
+            }
+        }
+        if accepted {
+            std::mem::swap(&mut self.position, &mut self.scratch.proposal);
+            self.log_prior = lp;
+            self.log_likelihood = ll;
+            self.accepted += 1;
+            self.rejection_run = 0;
+        } else {
+            self.rejection_run += 1;
+            self.longest_rejection_run = self.longest_rejection_run.max(self.rejection_run);
+        }
+    }
+}
+
+/// One ensemble at inverse temperature `beta`.
+#[derive(Clone, Debug)]
+pub(crate) struct Rung {
+    pub beta: f64,
+    pub walkers: Vec<Walker>,
+}
+
+impl Rung {
+    /// Updates half `part` (0 = first half, 1 = second) against the other half
+    /// (Foreman-Mackey et al. 2013, PASP 125, 306, Algorithm 3).
+    pub fn half_step<D: LogDensity + ?Sized>(
+        &mut self,
+        part: usize,
+        density: &D,
+        moves: &MoveMixture,
+        parallel: bool,
+    ) {
+        let half = self.walkers.len() / 2;
+        let beta = self.beta;
+        let (first, second) = self.walkers.split_at_mut(half);
+        let (active, complement): (&mut [Walker], &[Walker]) = if part == 0 {
+            (first, second)
+        } else {
+            (second, first)
+        };
+        if parallel {
+            active
+                .par_iter_mut()
+                .for_each(|w| w.advance(complement, moves, density, beta));
+        } else {
+            active
+                .iter_mut()
+                .for_each(|w| w.advance(complement, moves, density, beta));
+        }
+    }
+}
+
+/// Advances every temperature by one full step (both halves).
+pub(crate) fn step_all<D: LogDensity + ?Sized>(
+    rungs: &mut [Rung],
+    density: &D,
+    moves: &MoveMixture,
+    parallel: bool,
+) {
+    for part in 0..2 {
+        if parallel && rungs.len() > 1 {
+            rungs
+                .par_iter_mut()
+                .for_each(|r| r.half_step(part, density, moves, true));
+        } else {
+            for r in rungs.iter_mut() {
+                r.half_step(part, density, moves, parallel);
+            }
+        }
+    }
+}

@@ -1,0 +1,48 @@
+//! Per-walker random streams.
+//!
+//! Every walker owns a Xoshiro256++ generator seeded from a value mixed from
+//! (run seed, stream identity), so a walker's random numbers never depend on
+//! which thread updates it or in which order: results depend on the seed
+//! only, never on the number of threads.
+
+use rand::SeedableRng;
+use rand_xoshiro::Xoshiro256PlusPlus;
+
+/// The generator type used by every stream of a run.
+pub type StreamRng = Xoshiro256PlusPlus;
+
+/// SplitMix64 finaliser (Steele, Lea & Flood, "Fast splittable pseudorandom
+/// number generators", OOPSLA 2014), used to decorrelate nearby seeds.
+fn splitmix64(mut z: u64) -> u64 {
+    z = z.wrapping_add(0x9E37_79B9_7F4A_7C15);
+    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+    z ^ (z >> 31)
+}
+
+/// Kinds of stream, so that walker, start-up and swap streams never coincide.
+#[derive(Clone, Copy, Debug)]
+pub(crate) enum Stream {
+    /// Moves of walker `walker` in temperature `rung`.
+    Walker { rung: usize, walker: usize },
+    /// Initial positions of temperature `rung`.
+    Start { rung: usize },
+    /// Swaps between temperatures.
+    Swaps,
+}
+
+impl Stream {
+    fn id(self) -> u64 {
+        match self {
+            Stream::Walker { rung, walker } => ((rung as u64) << 32) | (walker as u64),
+            Stream::Start { rung } => (1u64 << 62) | rung as u64,
+            Stream::Swaps => 1u64 << 63,
+        }
+    }
+}
+
+/// Generator for one stream of a run with `seed`.
+pub(crate) fn stream_rng(seed: u64, stream: Stream) -> StreamRng {
+    let mixed = splitmix64(seed ^ splitmix64(stream.id()));
+    StreamRng::seed_from_u64(mixed)
+}
