@@ -46,7 +46,11 @@ pub(crate) mod summary;
 pub use atomic::{prepare_run_folder, write_atomically};
 pub use error::ReportError;
 pub use input::{ParameterInfo, ParameterKind, PosteriorDraws, RunMetadata};
-pub use plots::{plot_corner, plot_sky, PlotFiles, SkyMeasurement, SkyPlotInput, SkyPrediction};
+pub use plots::{
+    plot_corner, plot_mass_distributions, plot_sky, plot_velocity_curves, register_bundled_font,
+    DistributionPanel, PlotFiles, SkyMeasurement, SkyPlotInput, SkyPrediction, Star,
+    VelocityPlotInput, VelocityPoint,
+};
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{
     json_summary, markdown_summary, text_summary, write_json_summary, write_markdown_summary,

@@ -201,3 +201,106 @@ fn sky_plot_writes_png_and_svg() {
     check_files(&files, 1000, 1060);
     assert!(plot_sky(&dir.join("empty"), &SkyPlotInput::default()).is_err());
 }
+
+/// Kepler velocity curve of DESIGN.md: v_rel = K (cos(nu + w) + e cos w).
+fn rv_rel(phase: f64, k: f64, e: f64, w: f64) -> f64 {
+    let m = std::f64::consts::TAU * phase;
+    let mut ea = m;
+    for _ in 0..30 {
+        ea -= (ea - e * ea.sin() - m) / (1.0 - e * ea.cos());
+    }
+    let nu = 2.0 * ((1.0 + e).sqrt() * (0.5 * ea).sin()).atan2((1.0 - e).sqrt() * (0.5 * ea).cos());
+    k * ((nu + w).cos() + e * w.cos())
+}
+
+#[test]
+fn velocity_plot_writes_png_and_svg() {
+    let dir = preview_dir();
+    let mut rng = SplitMix(3);
+    let (p, t0, k, e, w, q) = (412.0, 2_458_000.3, 38.0, 0.35, 1.1, 0.62);
+    let (f1, f2) = (q / (1.0 + q), 1.0 / (1.0 + q));
+    let mut points = Vec::new();
+    for i in 0..40 {
+        let t = t0 + 37.3 * i as f64 + 3.0 * rng.uniform();
+        let ph = ((t - t0) / p).rem_euclid(1.0);
+        let vr = rv_rel(ph, k, e, w);
+        let inst = if i % 3 == 0 {
+            "echelle-north"
+        } else {
+            "fibre-south"
+        };
+        let err = if i % 3 == 0 { 0.8 } else { 1.5 };
+        let n1 = err * rng.normal();
+        points.push(VelocityPoint {
+            t_jd: t,
+            rv_kms: -f1 * vr + n1,
+            err_kms: err,
+            residual_kms: n1,
+            star: Star::Primary,
+            instrument: inst.into(),
+        });
+        if i % 2 == 0 {
+            let n2 = 2.0 * err * rng.normal();
+            points.push(VelocityPoint {
+                t_jd: t,
+                rv_kms: f2 * vr + n2,
+                err_kms: 2.0 * err,
+                residual_kms: n2,
+                star: Star::Secondary,
+                instrument: inst.into(),
+            });
+        }
+    }
+    let grid: Vec<f64> = (0..=400).map(|i| i as f64 / 400.0).collect();
+    let input = VelocityPlotInput {
+        title: "Radial velocities of Tarn-7, folded on P = 412.0 d".into(),
+        period_days: p,
+        t_peri_jd: t0,
+        points,
+        model_primary: grid
+            .iter()
+            .map(|&ph| (ph, -f1 * rv_rel(ph, k, e, w)))
+            .collect(),
+        model_secondary: grid
+            .iter()
+            .map(|&ph| (ph, f2 * rv_rel(ph, k, e, w)))
+            .collect(),
+    };
+    let files = plot_velocity_curves(&dir.join("velocity"), &input).unwrap();
+    check_files(&files, 1200, 900);
+    let bad = VelocityPlotInput {
+        period_days: 0.0,
+        ..input.clone()
+    };
+    assert!(plot_velocity_curves(&dir.join("bad"), &bad).is_err());
+}
+
+#[test]
+fn mass_plot_writes_png_and_svg() {
+    let dir = preview_dir();
+    let mut rng = SplitMix(5);
+    let n = 8000;
+    let (mut m1, mut m2, mut mt, mut q) = (vec![], vec![], vec![], vec![]);
+    for _ in 0..n {
+        let a = 1.32 * (1.0 + 0.05 * rng.normal());
+        let b = 0.81 * (1.0 + 0.07 * rng.normal());
+        m1.push(a);
+        m2.push(b);
+        mt.push(a + b);
+        q.push(b / a);
+    }
+    let panel = |label: &str, unit: &str, values: Vec<f64>| DistributionPanel {
+        label: label.into(),
+        unit: unit.into(),
+        values,
+    };
+    let panels = vec![
+        panel("M₁", "M☉", m1),
+        panel("M₂", "M☉", m2),
+        panel("M₁ + M₂", "M☉", mt),
+        panel("q = M₂/M₁", "", q),
+    ];
+    let files = plot_mass_distributions(&dir.join("masses"), "Masses of Tarn-7", &panels).unwrap();
+    check_files(&files, 1200, 920);
+    assert!(plot_mass_distributions(&dir.join("bad"), "x", &[]).is_err());
+}

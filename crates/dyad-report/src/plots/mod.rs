@@ -13,7 +13,9 @@ mod ranks;
 mod sky;
 mod velocity;
 
+pub use masses::{plot_mass_distributions, DistributionPanel};
 pub use sky::{plot_sky, SkyMeasurement, SkyPlotInput, SkyPrediction};
+pub use velocity::{plot_velocity_curves, Star, VelocityPlotInput, VelocityPoint};
 
 pub use corner::plot_corner;
 
