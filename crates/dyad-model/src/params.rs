@@ -58,6 +58,11 @@
 //! T_peri = t_ref - (lambda - omega) P / (2 pi).
 //!
 //! Parameters whose prior is `fixed` are removed from the vector.
+//!
+//! A prior whose support reaches outside the physical range (a normal prior
+//! on a parallax or a period) is cut by that range: its density is used as
+//! given, without renormalising the part that remains. This shifts every
+//! evidence computed with the same priors by the same constant.
 
 use std::f64::consts::{LN_2, PI, TAU};
 
@@ -599,11 +604,6 @@ impl ParameterLayout {
             )));
         }
         check_domain(&priors.period_days, "the period", 0.0, f64::INFINITY, false)?;
-        if priors.period_days.support().0 <= 0.0 && priors.period_days.contains(0.0) {
-            return Err(ModelError::InvalidPrior(
-                "the prior on the period must exclude zero and negative periods".into(),
-            ));
-        }
         check_domain(&priors.eccentricity, "the eccentricity", 0.0, 1.0, true)?;
         if let InclinationPrior::Angle(p) = &priors.inclination {
             check_domain(p, "the inclination", 0.0, PI, false)?;

@@ -3,4 +3,6 @@
 //! binary (submodules) to keep link time down.
 
 mod common;
+mod config_errors;
+mod jacobians;
 mod likelihood;
