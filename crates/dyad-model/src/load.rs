@@ -41,6 +41,8 @@
 //! - Epochs must fall between the Julian epochs J1000.0 and J3000.0 (JD
 //!   2086295.0 to 2816795.0): a value outside usually means the wrong time
 //!   column name (e.g. MJD under `jd`).
+//! - Uncertainties must be at least [`SMALLEST_ERROR`] (1e-9) in their
+//!   column's unit.
 //! - Every error names the file, the 1-based line and the column.
 
 use std::io::Read;
@@ -56,6 +58,11 @@ use crate::error::ModelError;
 pub const EARLIEST_PLAUSIBLE_JD: f64 = 2_086_295.0;
 /// Latest plausible epoch, JD: the Julian epoch J3000.0.
 pub const LATEST_PLAUSIBLE_JD: f64 = 2_816_795.0;
+
+/// Smallest accepted uncertainty, in the unit of its column: anything
+/// smaller is surely a typing mistake, and its inverse square would overflow
+/// a likelihood.
+pub const SMALLEST_ERROR: f64 = 1e-9;
 
 /// Speed of light, km/s (SI definition), the bound on any radial velocity.
 const SPEED_OF_LIGHT_KMS: f64 = 299_792.458;
@@ -589,6 +596,12 @@ impl Row<'_> {
         if value <= 0.0 {
             return Err(self.error(index, format!("an error must be positive, got {value}")));
         }
+        if value < SMALLEST_ERROR {
+            return Err(self.error(
+                index,
+                format!("an error of {value} is implausibly small (below {SMALLEST_ERROR:e} in the column's unit)"),
+            ));
+        }
         Ok(value)
     }
 
@@ -817,7 +830,11 @@ fn parse_astrometry(bytes: &[u8], file: &Path) -> Result<Vec<AstrometryEpoch>, M
                 _ => {}
             }
             // `+ 0.0` turns a -0 position angle into +0.
-            values[k] = value * factor + 0.0;
+            let scaled = value * factor + 0.0;
+            if !scaled.is_finite() {
+                return Err(row.error(index, format!("{value} is too large")));
+            }
+            values[k] = scaled;
         }
         let corr = match corr_index {
             Some(index) => row.correlation(index)?,

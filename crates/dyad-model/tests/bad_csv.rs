@@ -397,6 +397,22 @@ fn cases() -> Vec<Case> {
             needles: &["missing column 'ddec_err_mas'"],
         },
         Case {
+            what: "separation overflowing on conversion",
+            kind: A,
+            content: bytes!("jd, sep_arcsec, sep_err_mas, pa_deg, pa_err_deg\n", "2451545.0, 1e306, 1, 10, 1\n"),
+            line: Some(2),
+            column: Some("sep_arcsec"),
+            needles: &["too large"],
+        },
+        Case {
+            what: "implausibly small error",
+            kind: V,
+            content: bytes!(rv!(), "\n", "2451545.0, 10, 1e-12, primary, coude\n"),
+            line: Some(2),
+            column: Some("rv_err_kms"),
+            needles: &["implausibly small"],
+        },
+        Case {
             what: "no position columns at all",
             kind: A,
             content: bytes!("jd, corr\n", "2451545.0, 0.1\n"),
