@@ -47,9 +47,10 @@ pub use atomic::{prepare_run_folder, write_atomically};
 pub use error::ReportError;
 pub use input::{ParameterInfo, ParameterKind, PosteriorDraws, RunMetadata};
 pub use plots::{
-    plot_corner, plot_mass_distributions, plot_sky, plot_velocity_curves, register_bundled_font,
-    DistributionPanel, PlotFiles, SkyMeasurement, SkyPlotInput, SkyPrediction, Star,
-    VelocityPlotInput, VelocityPoint,
+    binomial_quantile, plot_corner, plot_mass_distributions, plot_period_windows,
+    plot_rank_histograms, plot_sky, plot_velocity_curves, register_bundled_font, DistributionPanel,
+    MassInterval, PlotFiles, RankHistogramInput, SkyMeasurement, SkyPlotInput, SkyPrediction, Star,
+    VelocityPlotInput, VelocityPoint, WindowSummary, RANK_BAND_PROBABILITY,
 };
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{

@@ -304,3 +304,97 @@ fn mass_plot_writes_png_and_svg() {
     check_files(&files, 1200, 920);
     assert!(plot_mass_distributions(&dir.join("bad"), "x", &[]).is_err());
 }
+
+#[test]
+fn period_window_plot_writes_png_and_svg() {
+    let dir = preview_dir();
+    let mass = |name: &str, m: f64, s: f64| MassInterval {
+        name: name.into(),
+        median: m,
+        lo68: m - s,
+        hi68: m + 1.1 * s,
+        lo95: m - 2.1 * s,
+        hi95: m + 2.3 * s,
+    };
+    let windows = vec![
+        WindowSummary {
+            label: "A".into(),
+            p_lo_days: 380.0,
+            p_hi_days: 450.0,
+            probability: 0.71,
+            probability_err: 0.04,
+            ln_z: -152.31,
+            ln_z_err: 0.12,
+            masses: vec![
+                mass("M₁ + M₂", 2.1, 0.1),
+                mass("M₁", 1.3, 0.08),
+                mass("M₂", 0.8, 0.06),
+            ],
+        },
+        WindowSummary {
+            label: "B".into(),
+            p_lo_days: 760.0,
+            p_hi_days: 900.0,
+            probability: 0.26,
+            probability_err: 0.04,
+            ln_z: -153.31,
+            ln_z_err: 0.15,
+            masses: vec![
+                mass("M₁ + M₂", 3.4, 0.3),
+                mass("M₁", 2.0, 0.2),
+                mass("M₂", 1.4, 0.15),
+            ],
+        },
+        WindowSummary {
+            label: "C".into(),
+            p_lo_days: 1500.0,
+            p_hi_days: 2100.0,
+            probability: 0.03,
+            probability_err: 0.01,
+            ln_z: -155.5,
+            ln_z_err: 0.2,
+            masses: vec![mass("M₁ + M₂", 5.6, 0.8)],
+        },
+    ];
+    let files = plot_period_windows(
+        &dir.join("periods"),
+        "Which periods do the data allow?",
+        &windows,
+    )
+    .unwrap();
+    let (w, h) = png_size(&files.png);
+    check_files(&files, w, h);
+    assert!(plot_period_windows(&dir.join("bad"), "x", &[]).is_err());
+}
+
+#[test]
+fn rank_histogram_plot_writes_png_and_svg() {
+    let dir = preview_dir();
+    let mut rng = SplitMix(9);
+    let l = 99;
+    let inputs: Vec<RankHistogramInput> = ["ln P", "e", "cos i", "M₁ + M₂"]
+        .iter()
+        .enumerate()
+        .map(|(k, name)| RankHistogramInput {
+            label: (*name).into(),
+            ranks: (0..500)
+                .map(|_| {
+                    let u = rng.uniform();
+                    // The last parameter is miscalibrated (ranks pile up in the middle).
+                    let u = if k == 3 { 0.5 + 0.6 * (u - 0.5) } else { u };
+                    ((u * (l + 1) as f64) as usize).min(l)
+                })
+                .collect(),
+        })
+        .collect();
+    let files = plot_rank_histograms(
+        &dir.join("ranks"),
+        "Simulation-based calibration: rank histograms",
+        &inputs,
+        l,
+        20,
+    )
+    .unwrap();
+    check_files(&files, 3 * 460, 96 + 2 * 360);
+    assert!(plot_rank_histograms(&dir.join("bad"), "x", &inputs, 10, 20).is_err());
+}

@@ -5,6 +5,7 @@
 //! Design", https://jfly.uni-koeln.de/color/), used sparingly on white with
 //! grey axes; markers differ in shape as well as colour.
 
+mod category;
 mod corner;
 pub mod density;
 mod masses;
@@ -14,6 +15,10 @@ mod sky;
 mod velocity;
 
 pub use masses::{plot_mass_distributions, DistributionPanel};
+pub use periods::{plot_period_windows, MassInterval, WindowSummary};
+pub use ranks::{
+    binomial_quantile, plot_rank_histograms, RankHistogramInput, RANK_BAND_PROBABILITY,
+};
 pub use sky::{plot_sky, SkyMeasurement, SkyPlotInput, SkyPrediction};
 pub use velocity::{plot_velocity_curves, Star, VelocityPlotInput, VelocityPoint};
 
@@ -201,26 +206,6 @@ pub(crate) fn widen(lo: f64, hi: f64, pad: f64) -> (f64, f64) {
     (lo - pad * span, hi + pad * span)
 }
 
-/// Draws left-aligned lines of text starting at pixel `(x, y)` of `area`.
-pub(crate) fn draw_text_lines<DB: DrawingBackend>(
-    area: &DrawingArea<DB, Shift>,
-    lines: &[String],
-    (x, y): (i32, i32),
-    size: f64,
-    plot: &'static str,
-) -> Result<(), ReportError> {
-    let line_height = (size * 1.25).round() as i32;
-    for (i, line) in lines.iter().enumerate() {
-        area.draw(&Text::new(
-            line.clone(),
-            (x, y + i as i32 * line_height),
-            font(size),
-        ))
-        .ctx(plot)?;
-    }
-    Ok(())
-}
-
 /// Marker shapes for per-instrument points.
 #[derive(Debug, Clone, Copy)]
 pub(crate) enum Marker {
@@ -280,8 +265,6 @@ pub(crate) enum LegendGlyph {
     Line(RGBColor, u32, f64),
     /// A filled marker.
     Marker(Marker, RGBColor),
-    /// A filled band (box).
-    Band(RGBColor, f64),
 }
 
 /// Where a legend box goes inside an area.
@@ -407,12 +390,6 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
                 c.filled(),
                 plot,
             )?,
-            LegendGlyph::Band(c, a) => area
-                .draw(&Rectangle::new(
-                    [(gx0, cy - line_h / 3), (gx0 + glyph_w, cy + line_h / 3)],
-                    c.mix(a).filled(),
-                ))
-                .ctx(plot)?,
         }
         area.draw(&Text::new(
             text.clone(),
