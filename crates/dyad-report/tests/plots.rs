@@ -398,3 +398,93 @@ fn rank_histogram_plot_writes_png_and_svg() {
     check_files(&files, 3 * 460, 96 + 2 * 360);
     assert!(plot_rank_histograms(&dir.join("bad"), "x", &inputs, 10, 20).is_err());
 }
+
+#[test]
+fn sky_plot_of_a_short_arc_without_best_orbit() {
+    // A sparse case: five positions on a short arc, widely different
+    // posterior orbits, no best orbit and no predictions.
+    let dir = preview_dir();
+    let mut rng = SplitMix(13);
+    let deg = std::f64::consts::PI / 180.0;
+    let tracks: Vec<Vec<(f64, f64)>> = (0..100)
+        .map(|_| {
+            orbit_track(
+                300.0 * (1.0 + 0.3 * rng.normal()).abs().max(0.3),
+                (0.3 + 0.2 * rng.normal()).clamp(0.0, 0.9),
+                (120.0 + 10.0 * rng.normal()) * deg,
+                (200.0 + 20.0 * rng.normal()) * deg,
+                (30.0 + 5.0 * rng.normal()) * deg,
+                200,
+            )
+        })
+        .collect();
+    let measurements = (0..5)
+        .map(|k| SkyMeasurement {
+            dra: 150.0 + 8.0 * k as f64,
+            ddec: 220.0 - 5.0 * k as f64,
+            cov: [[4.0, -1.0], [-1.0, 2.0]],
+            label: String::new(),
+        })
+        .collect();
+    let input = SkyPlotInput {
+        title: "Short arc: invented pair Corrie-2".into(),
+        measurements,
+        tracks,
+        best_track: None,
+        predictions: vec![],
+    };
+    let files = plot_sky(&dir.join("sky_short_arc"), &input).unwrap();
+    check_files(&files, 1000, 1060);
+}
+
+/// Median pixel position (as fractions of width and height) of the
+/// measurement colour (Okabe-Ito vermillion, 213/94/0). The median is
+/// dominated by the drawn ellipse; the small legend marker cannot move it.
+fn vermillion_centroid(path: &Path) -> (f64, f64) {
+    let img = image::open(path).unwrap().to_rgb8();
+    let (w, h) = img.dimensions();
+    let (mut xs, mut ys) = (Vec::new(), Vec::new());
+    for (x, y, p) in img.enumerate_pixels() {
+        let close = (p[0] as i32 - 213).abs() < 25 && (p[1] as i32 - 94).abs() < 25 && p[2] < 40;
+        if close {
+            xs.push(x);
+            ys.push(y);
+        }
+    }
+    assert!(
+        xs.len() > 100,
+        "measurement not found in {}",
+        path.display()
+    );
+    xs.sort_unstable();
+    ys.sort_unstable();
+    (
+        xs[xs.len() / 2] as f64 / w as f64,
+        ys[ys.len() / 2] as f64 / h as f64,
+    )
+}
+
+#[test]
+fn sky_plot_puts_east_left_and_north_up() {
+    // Convention (DESIGN.md; common practice): ΔRA* > 0 is East, drawn to
+    // the left of the primary; ΔDec > 0 is North, drawn above it. The view
+    // is centred between the primary and the measurement, so the
+    // measurement must fall in the left (upper) half.
+    let dir = preview_dir();
+    let one = |dra: f64, ddec: f64| SkyPlotInput {
+        title: "orientation check".into(),
+        measurements: vec![SkyMeasurement {
+            dra,
+            ddec,
+            cov: [[25.0, 0.0], [0.0, 25.0]],
+            label: String::new(),
+        }],
+        ..SkyPlotInput::default()
+    };
+    let east = plot_sky(&dir.join("orient_east"), &one(100.0, 10.0)).unwrap();
+    let (x, _) = vermillion_centroid(&east.png);
+    assert!(x < 0.45, "East measurement drawn at x = {x} of the width");
+    let north = plot_sky(&dir.join("orient_north"), &one(10.0, 100.0)).unwrap();
+    let (_, y) = vermillion_centroid(&north.png);
+    assert!(y < 0.45, "North measurement drawn at y = {y} of the height");
+}

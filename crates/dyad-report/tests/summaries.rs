@@ -188,6 +188,11 @@ fn text_and_markdown_summaries_hold_metadata_and_table() {
     // m1 median 1.2, 68 % half-width 0.05*0.34 = 0.017 -> 3 decimals.
     assert!(m.contains("| m1 | Msun | 1.200 |"), "{m}");
     assert_eq!(m.lines().filter(|l| l.starts_with("| ")).count(), 3);
+    // Keep copies for reading by eye.
+    let preview = std::path::Path::new(env!("CARGO_TARGET_TMPDIR")).join("summary-previews");
+    fs::create_dir_all(&preview).unwrap();
+    fs::write(preview.join("summary.txt"), &t).unwrap();
+    fs::write(preview.join("summary.md"), &m).unwrap();
 }
 
 #[test]

@@ -125,7 +125,7 @@ pub fn mass_levels(z: &[f64], fractions: &[f64]) -> Vec<f64> {
     fractions
         .iter()
         .map(|&f| {
-            if !(total > 0.0) {
+            if total.is_nan() || total <= 0.0 {
                 return f64::INFINITY;
             }
             let mut acc = 0.0;

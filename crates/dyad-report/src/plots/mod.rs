@@ -199,7 +199,7 @@ pub(crate) fn padded_range(values: &[f64], pad: f64) -> (f64, f64) {
 /// `[lo, hi]` padded by `pad` of its span; degenerate spans get a window.
 pub(crate) fn widen(lo: f64, hi: f64, pad: f64) -> (f64, f64) {
     let span = hi - lo;
-    if !(span > 0.0) || !span.is_finite() {
+    if !span.is_finite() || span <= 0.0 {
         let half = if lo.abs() > 0.0 { 0.05 * lo.abs() } else { 0.5 };
         return (lo - half, lo + half);
     }
@@ -214,6 +214,8 @@ pub(crate) enum Marker {
     Square,
     Diamond,
     Cross,
+    /// Five-pointed star with a dark outline (the primary star).
+    Star,
 }
 
 pub(crate) const MARKERS: [Marker; 5] = [
@@ -237,7 +239,7 @@ where
     CT::From: Clone + 'static,
 {
     let s = size;
-    let e = EmptyElement::at(at);
+    let e = EmptyElement::at(at.clone());
     match marker {
         Marker::Circle => area.draw(&(e + Circle::new((0, 0), s, style))),
         Marker::Triangle => {
@@ -250,6 +252,24 @@ where
                 style,
             )),
         ),
+        Marker::Star => {
+            let pts: Vec<(i32, i32)> = (0..10)
+                .map(|k| {
+                    let r = if k % 2 == 0 {
+                        s as f64
+                    } else {
+                        0.42 * s as f64
+                    };
+                    let a = std::f64::consts::PI * (k as f64 / 5.0 - 0.5);
+                    ((r * a.cos()).round() as i32, (r * a.sin()).round() as i32)
+                })
+                .collect();
+            let mut outline = pts.clone();
+            outline.push(pts[0]);
+            area.draw(&(EmptyElement::at(at) + Polygon::new(pts, style)))
+                .ctx(plot)?;
+            area.draw(&(e + PathElement::new(outline, INK.stroke_width(1))))
+        }
         Marker::Cross => area.draw(
             &(e + PathElement::new(vec![(-s, -s), (s, s)], style.stroke_width(2))
                 + PathElement::new(vec![(-s, s), (s, -s)], style.stroke_width(2))),
@@ -268,7 +288,7 @@ pub(crate) enum LegendGlyph {
 }
 
 /// Where a legend box goes inside an area.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) enum Corner {
     TopLeft,
     TopRight,
@@ -298,7 +318,7 @@ pub(crate) fn legend_size<DB: DrawingBackend>(
     ))
 }
 
-fn corner_origin(
+pub(crate) fn corner_origin(
     corner: Corner,
     (bw, bh): (i32, i32),
     (aw, ah): (i32, i32),
@@ -386,7 +406,11 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
                 area,
                 (gx0 + glyph_w / 2, cy),
                 m,
-                (size * 0.3).round() as i32,
+                if matches!(m, Marker::Star) {
+                    (size * 0.55).round() as i32
+                } else {
+                    (size * 0.3).round() as i32
+                },
                 c.filled(),
                 plot,
             )?,

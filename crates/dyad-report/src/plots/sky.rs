@@ -1,9 +1,9 @@
 //! Sky plot of the relative orbit: North up, East left.
 
 use super::{
-    draw_legend, draw_marker, font, least_crowded_corner, legend_size, render, tick_formatter,
-    Corner, Figure, LegendGlyph, Marker, PlotFiles, PlotResultExt, BLUE, GREY, INK, ORANGE, PURPLE,
-    SKY_BLUE, VERMILLION,
+    corner_origin, draw_legend, draw_marker, font, least_crowded_corner, legend_size, render,
+    tick_formatter, Corner, Figure, LegendGlyph, Marker, PlotFiles, PlotResultExt, BLUE, GREY, INK,
+    ORANGE, PURPLE, SKY_BLUE, VERMILLION,
 };
 use crate::error::ReportError;
 use plotters::coord::Shift;
@@ -112,6 +112,7 @@ const MARGIN: u32 = 24;
 const X_LABEL: u32 = 70;
 const Y_LABEL: u32 = 90;
 const LEGEND_FONT: f64 = 17.0;
+const COMPASS_BOX: i32 = 110;
 
 impl Figure for SkyFigure<'_> {
     const NAME: &'static str = NAME;
@@ -195,7 +196,11 @@ impl Figure for SkyFigure<'_> {
                     BLUE.stroke_width(3),
                 )))
                 .ctx(NAME)?;
-            if let Some((tail, head)) = motion_arrow(best, scale * pw) {
+        }
+        // Direction of motion along the best orbit, else the first draw's
+        // (every draw shares the sense of motion the data fix).
+        if let Some(arrow_track) = inp.best_track.as_ref().or(inp.tracks.first()) {
+            if let Some((tail, head)) = motion_arrow(arrow_track, scale * pw) {
                 let (tx, ty) = (-tail.0, tail.1);
                 let (hx, hy) = (-head.0, head.1);
                 let (dx, dy) = (hx - tx, hy - ty);
@@ -271,48 +276,17 @@ impl Figure for SkyFigure<'_> {
                 .ctx(NAME)?;
         }
         // The primary: a five-pointed star at the origin.
-        let star: Vec<(i32, i32)> = (0..10)
-            .map(|k| {
-                let r = if k % 2 == 0 { 13.0 } else { 5.5 };
-                let a = std::f64::consts::PI * (k as f64 / 5.0 - 0.5);
-                ((r * a.cos()).round() as i32, (r * a.sin()).round() as i32)
-            })
-            .collect();
-        chart
-            .plotting_area()
-            .draw(&(EmptyElement::at((0.0, 0.0)) + Polygon::new(star.clone(), ORANGE.filled())))
-            .ctx(NAME)?;
-        let mut outline = star;
-        outline.push(outline[0]);
-        chart
-            .plotting_area()
-            .draw(&(EmptyElement::at((0.0, 0.0)) + PathElement::new(outline, INK.stroke_width(1))))
-            .ctx(NAME)?;
-
-        // Compass (pixel space, top-right corner of the plotting area).
-        let plot = chart.plotting_area().strip_coord_spec();
-        let (ppw, _) = plot.dim_in_pixel();
-        let (ox, oy, len) = (ppw as i32 - 40, 100, 60);
-        for (tip, label, lpos) in [
-            ((ox, oy - len), "N", Pos::new(HPos::Center, VPos::Bottom)),
-            ((ox - len, oy), "E", Pos::new(HPos::Right, VPos::Center)),
-        ] {
-            plot.draw(&PathElement::new(vec![(ox, oy), tip], INK.stroke_width(2)))
-                .ctx(NAME)?;
-            let (dx, dy) = ((tip.0 - ox).signum(), (tip.1 - oy).signum());
-            let head = vec![
-                tip,
-                (tip.0 - 10 * dx + 5 * dy, tip.1 - 10 * dy + 5 * dx),
-                (tip.0 - 10 * dx - 5 * dy, tip.1 - 10 * dy - 5 * dx),
-            ];
-            plot.draw(&Polygon::new(head, INK.filled())).ctx(NAME)?;
-            let lp = (tip.0 + 6 * dx, tip.1 + 6 * dy);
-            plot.draw(&Text::new(label, lp, font(22.0).pos(lpos)))
-                .ctx(NAME)?;
-        }
+        draw_marker(
+            chart.plotting_area(),
+            (0.0, 0.0),
+            Marker::Star,
+            13,
+            ORANGE.filled(),
+            NAME,
+        )?;
 
         let mut legend = vec![(
-            LegendGlyph::Marker(Marker::Circle, ORANGE),
+            LegendGlyph::Marker(Marker::Star, ORANGE),
             "primary".to_string(),
         )];
         if !inp.measurements.is_empty() {
@@ -362,6 +336,7 @@ impl Figure for SkyFigure<'_> {
                 push(p.dra, p.ddec);
             }
         }
+        let plot = chart.plotting_area().strip_coord_spec();
         let box_size = legend_size(&plot, &legend, LEGEND_FONT, NAME)?;
         let (pw, ph) = plot.dim_in_pixel();
         let corner = least_crowded_corner(
@@ -377,6 +352,47 @@ impl Figure for SkyFigure<'_> {
             ],
         );
         draw_legend(&plot, &legend, corner, 10, LEGEND_FONT, NAME)?;
+        // Compass (pixel space) in the least crowded of the other corners.
+        let compass_corner = least_crowded_corner(
+            &pts,
+            (COMPASS_BOX, COMPASS_BOX),
+            (pw as i32, ph as i32),
+            10,
+            &[
+                Corner::TopRight,
+                Corner::TopLeft,
+                Corner::BottomRight,
+                Corner::BottomLeft,
+            ]
+            .into_iter()
+            .filter(|c| *c != corner)
+            .collect::<Vec<_>>(),
+        );
+        let (bx, by) = corner_origin(
+            compass_corner,
+            (COMPASS_BOX, COMPASS_BOX),
+            (pw as i32, ph as i32),
+            10,
+        );
+        let (ox, oy, len) = (bx + COMPASS_BOX - 25, by + COMPASS_BOX - 20, 60);
+        for (tip, label, lpos) in [
+            ((ox, oy - len), "N", Pos::new(HPos::Center, VPos::Bottom)),
+            ((ox - len, oy), "E", Pos::new(HPos::Right, VPos::Center)),
+        ] {
+            plot.draw(&PathElement::new(vec![(ox, oy), tip], INK.stroke_width(2)))
+                .ctx(NAME)?;
+            let (dx, dy) = ((tip.0 - ox).signum(), (tip.1 - oy).signum());
+            let head = vec![
+                tip,
+                (tip.0 - 10 * dx + 5 * dy, tip.1 - 10 * dy + 5 * dx),
+                (tip.0 - 10 * dx - 5 * dy, tip.1 - 10 * dy - 5 * dx),
+            ];
+            plot.draw(&Polygon::new(head, INK.filled())).ctx(NAME)?;
+            let lp = (tip.0 + 6 * dx, tip.1 + 6 * dy);
+            plot.draw(&Text::new(label, lp, font(22.0).pos(lpos)))
+                .ctx(NAME)?;
+        }
+
         Ok(())
     }
 }
@@ -406,7 +422,7 @@ fn motion_arrow(track: &[(f64, f64)], view_span: f64) -> Option<((f64, f64), (f6
     let b = track[(i + 1) % n];
     let (dx, dy) = (b.0 - a.0, b.1 - a.1);
     let len = (dx * dx + dy * dy).sqrt();
-    if !(len > 0.0) {
+    if len.is_nan() || len <= 0.0 {
         return None;
     }
     let (ux, uy) = (dx / len, dy / len);
