@@ -488,3 +488,42 @@ fn sky_plot_puts_east_left_and_north_up() {
     let (_, y) = vermillion_centroid(&north.png);
     assert!(y < 0.45, "North measurement drawn at y = {y} of the height");
 }
+
+#[test]
+fn corner_plot_with_six_awkward_parameters() {
+    // Large offsets (a JD), tiny numbers, a node known modulo 180 deg.
+    let dir = preview_dir();
+    let mut rng = SplitMix(21);
+    let n = 4000;
+    let mut values = Vec::with_capacity(6 * n);
+    let mut lp = Vec::with_capacity(n);
+    for _ in 0..n {
+        let z: Vec<f64> = (0..6).map(|_| rng.normal()).collect();
+        values.extend([
+            2_458_123.4 + 3.2 * z[0],
+            (179.0 + 2.5 * z[1]).rem_euclid(180.0),
+            0.000_42 + 0.000_03 * z[2],
+            412.0 + 6.0 * (0.8 * z[0] + 0.6 * z[3]),
+            0.35 + 0.02 * z[4],
+            -12.3 + 0.4 * z[5],
+        ]);
+        lp.push(-0.5 * z.iter().map(|v| v * v).sum::<f64>());
+    }
+    let d = PosteriorDraws::new(
+        vec![
+            ParameterInfo::linear("t_peri", "JD", "T"),
+            ParameterInfo::angle("node", "deg", "Ω", 180.0),
+            ParameterInfo::linear("tiny", "", "ε"),
+            ParameterInfo::linear("period", "d", "P"),
+            ParameterInfo::linear("e", "", "e"),
+            ParameterInfo::linear("gamma", "km/s", "γ"),
+        ],
+        values,
+        lp,
+    )
+    .unwrap();
+    let names = ["t_peri", "node", "tiny", "period", "e", "gamma"];
+    let files = plot_corner(&dir.join("corner6"), "Six parameters", &d, &names).unwrap();
+    let (w, h) = png_size(&files.png);
+    check_files(&files, w, h);
+}

@@ -9,7 +9,7 @@ use super::{
     PlotResultExt, BLUE, GREY, INK, SKY_BLUE,
 };
 use crate::error::ReportError;
-use crate::input::{ParameterInfo, PosteriorDraws};
+use crate::input::PosteriorDraws;
 use crate::stats::{prepared_values, summarise_values};
 use crate::summary::{decimals_for, fmt_value};
 use plotters::coord::Shift;
@@ -24,7 +24,8 @@ const MAX_OUTLIER_DOTS: usize = 4000;
 const FILL_SUBDIVISION: usize = 4;
 
 struct Column {
-    info: ParameterInfo,
+    /// Axis text; names the offset when one was subtracted.
+    axis_label: String,
     values: Vec<f64>,
     range: (f64, f64),
     headline: String,
@@ -65,9 +66,28 @@ pub fn plot_corner(
         let info = draws.params[p].clone();
         let raw = draws.column(p);
         let (_, window) = prepared_values(&raw, info.kind);
-        let values: Vec<f64> = raw.iter().map(|&v| window.apply(v)).collect();
+        let mut values: Vec<f64> = raw.iter().map(|&v| window.apply(v)).collect();
         let s = summarise_values(&info, &raw, raw[0])?;
-        let range = padded_range(&values, 0.05);
+        let mut range = padded_range(&values, 0.05);
+        // A narrow posterior far from zero (e.g. a time of periastron in JD)
+        // gets its ticks relative to a round offset named on the axis, so
+        // tick labels stay short enough not to collide.
+        let span = range.1 - range.0;
+        let mut axis_label = info.axis_label();
+        if span > 0.0 && s.median.abs() > 1000.0 * span {
+            let step = 10f64.powf(span.log10().floor());
+            let offset = (s.median / step).round() * step;
+            let decimals = (-step.log10()).max(0.0) as usize;
+            for v in values.iter_mut() {
+                *v -= offset;
+            }
+            range = (range.0 - offset, range.1 - offset);
+            axis_label = if info.unit.is_empty() {
+                format!("{} − {offset:.decimals$}", info.label)
+            } else {
+                format!("{} − {offset:.decimals$} [{}]", info.label, info.unit)
+            };
+        }
         let d = decimals_for(&s);
         let f = |v: f64| fmt_value(v, d);
         let unit = if info.unit.is_empty() {
@@ -84,7 +104,7 @@ pub fn plot_corner(
             unit
         );
         columns.push(Column {
-            info,
+            axis_label,
             values,
             range,
             headline,
@@ -169,7 +189,13 @@ impl CornerFigure {
                 .build_cartesian_2d(lo..hi, 0.0..1.12)
                 .ctx(NAME)?;
             configure(
-                &mut chart, bottom_row, false, &cx.info, None, &x_fmt, &x_fmt,
+                &mut chart,
+                bottom_row,
+                false,
+                &cx.axis_label,
+                None,
+                &x_fmt,
+                &x_fmt,
             )?;
             chart
                 .draw_series(counts.iter().enumerate().map(|(i, c)| {
@@ -256,8 +282,8 @@ impl CornerFigure {
             &mut chart,
             bottom_row,
             left_col,
-            &cx.info,
-            Some(&cy.info),
+            &cx.axis_label,
+            Some(&cy.axis_label),
             &x_fmt,
             &y_fmt,
         )?;
@@ -312,8 +338,8 @@ fn configure<DB: DrawingBackend>(
     chart: &mut Chart<'_, DB>,
     x_labels: bool,
     y_labels: bool,
-    x_info: &ParameterInfo,
-    y_info: Option<&ParameterInfo>,
+    x_desc: &str,
+    y_desc: Option<&str>,
     x_fmt: &dyn Fn(&f64) -> String,
     y_fmt: &dyn Fn(&f64) -> String,
 ) -> Result<(), ReportError> {
@@ -327,10 +353,10 @@ fn configure<DB: DrawingBackend>(
         .axis_desc_style(font(18.0))
         .axis_style(GREY.stroke_width(1));
     if x_labels {
-        mesh.x_desc(x_info.axis_label());
+        mesh.x_desc(x_desc);
     }
-    if let (true, Some(y)) = (y_labels, y_info) {
-        mesh.y_desc(y.axis_label());
+    if let (true, Some(y)) = (y_labels, y_desc) {
+        mesh.y_desc(y);
     }
     mesh.draw().ctx(NAME)
 }
