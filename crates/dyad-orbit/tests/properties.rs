@@ -98,6 +98,24 @@ proptest! {
         prop_assert!(sol.e_anom.abs() <= PI + 1e-12);
     }
 
+    // The same bounds for the precomputed per-eccentricity solver used by
+    // `Orbit`, whole domain and corner.
+    #[test]
+    fn solver_residual_whole_domain(m in -1e4f64..1e4, e in 0.0f64..1.0) {
+        let sol = KeplerSolver::new(e).unwrap().solve(m);
+        let r = (sol.e_anom - e * sol.e_anom.sin() - reduce_mean_anomaly(m)).abs();
+        prop_assert!(r <= 1e-12, "M={m} e={e} r={r:e}");
+        prop_assert!((sol.sin_e - sol.e_anom.sin()).abs() <= 1e-14);
+        prop_assert!((sol.cos_e - sol.e_anom.cos()).abs() <= 1e-14);
+    }
+
+    #[test]
+    fn solver_residual_high_e_near_periastron(m in -0.2f64..0.2, e in 0.99f64..0.999_999) {
+        let sol = KeplerSolver::new(e).unwrap().solve(m);
+        let r = (sol.e_anom - e * sol.e_anom.sin() - m).abs();
+        prop_assert!(r <= 1e-12, "M={m} e={e} r={r:e}");
+    }
+
     // The per-eccentricity solver agrees with the free function.
     #[test]
     fn solver_matches_free_function(m in -1e4f64..1e4, e in 0.0f64..0.999_999) {
