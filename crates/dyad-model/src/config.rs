@@ -19,6 +19,7 @@ use crate::data::Dataset;
 use crate::error::ModelError;
 use crate::params::{InclinationPrior, ModelPriors, ScaledPrior};
 use crate::prior::Prior;
+use crate::toml_walk::{describe_value, line_of, Section};
 use dyad_orbit::constants::{DEG, JULIAN_YEAR_DAYS};
 use dyad_orbit::TimeScale;
 
@@ -246,141 +247,20 @@ impl Domain {
     }
 }
 
-/// A TOML table being read, with the file and dotted prefix for errors and
-/// the list of keys it may contain.
-struct Section<'a> {
-    file: &'a Path,
-    prefix: String,
-    table: &'a toml::Table,
-}
-
-impl<'a> Section<'a> {
-    fn dotted(&self, key: &str) -> String {
-        if self.prefix.is_empty() {
-            key.to_owned()
-        } else {
-            format!("{}.{key}", self.prefix)
-        }
-    }
-
-    fn error(&self, key: &str, message: impl Into<String>) -> ModelError {
-        ModelError::at(self.file, None, Some(&self.dotted(key)), message)
-    }
-
-    fn allow_only(&self, allowed: &[&str]) -> Result<(), ModelError> {
-        for key in self.table.keys() {
-            if !allowed.contains(&key.as_str()) {
-                return Err(self.error(
-                    key,
-                    format!("unknown key '{key}'; allowed here: {}", allowed.join(", ")),
-                ));
-            }
-        }
-        Ok(())
-    }
-
-    fn get(&self, key: &str) -> Option<&'a toml::Value> {
-        self.table.get(key)
-    }
-
-    fn sub(&self, key: &str) -> Result<Option<Section<'a>>, ModelError> {
-        match self.get(key) {
-            None => Ok(None),
-            Some(toml::Value::Table(t)) => Ok(Some(Section {
-                file: self.file,
-                prefix: self.dotted(key),
-                table: t,
-            })),
-            Some(other) => Err(self.error(
-                key,
-                format!("must be a table, found a {}", other.type_str()),
-            )),
-        }
-    }
-
-    fn f64(&self, key: &str) -> Result<Option<f64>, ModelError> {
-        match self.get(key) {
-            None => Ok(None),
-            Some(toml::Value::Float(f)) if f.is_finite() => Ok(Some(*f)),
-            Some(toml::Value::Integer(i)) => Ok(Some(*i as f64)),
-            Some(other) => Err(self.error(
-                key,
-                format!("must be a finite number, found {}", describe_value(other)),
-            )),
-        }
-    }
-
-    fn count(&self, key: &str, min: u64) -> Result<Option<u64>, ModelError> {
-        match self.get(key) {
-            None => Ok(None),
-            Some(toml::Value::Integer(i)) if *i >= min as i64 => Ok(Some(*i as u64)),
-            Some(other) => Err(self.error(
-                key,
-                format!(
-                    "must be a whole number >= {min}, found {}",
-                    describe_value(other)
-                ),
-            )),
-        }
-    }
-
-    fn string(&self, key: &str) -> Result<Option<&'a str>, ModelError> {
-        match self.get(key) {
-            None => Ok(None),
-            Some(toml::Value::String(s)) => Ok(Some(s.as_str())),
-            Some(other) => Err(self.error(
-                key,
-                format!("must be a string, found {}", describe_value(other)),
-            )),
-        }
-    }
-
-    /// A data file path relative to `base`, which must exist.
-    fn existing_file(&self, key: &str, value: &str, base: &Path) -> Result<PathBuf, ModelError> {
-        let path = base.join(value);
-        if !path.is_file() {
-            return Err(self.error(
-                key,
-                format!("data file '{}' not found (paths are relative to the configuration file's folder)", path.display()),
-            ));
-        }
-        Ok(path)
-    }
-
-    /// A prior in the key's unit, scaled to internal units, with its
-    /// support checked against the physical domain.
-    fn prior(
-        &self,
-        key: &str,
-        scale: f64,
-        domain: &Domain,
-    ) -> Result<Option<ScaledPrior>, ModelError> {
-        let Some(value) = self.get(key) else {
-            return Ok(None);
-        };
-        let prior = Prior::from_toml(value, self.file, &self.dotted(key))?;
-        check_prior_domain(self, key, &prior, domain)?;
-        Ok(Some(ScaledPrior::new(prior, scale)))
-    }
-
-    /// At most one of two alternative keys (e.g. `period_days`, `period_years`).
-    fn one_of(&self, a: &str, b: &str) -> Result<Option<&'static str>, ModelError> {
-        match (self.get(a).is_some(), self.get(b).is_some()) {
-            (true, true) => Err(self.error(b, format!("give either '{a}' or '{b}', not both"))),
-            (true, false) => Ok(Some("a")),
-            (false, true) => Ok(Some("b")),
-            (false, false) => Ok(None),
-        }
-    }
-}
-
-fn describe_value(v: &toml::Value) -> String {
-    match v {
-        toml::Value::String(s) => format!("the string \"{s}\""),
-        toml::Value::Float(f) => format!("the number {f}"),
-        toml::Value::Integer(i) => format!("the number {i}"),
-        other => format!("a {}", other.type_str()),
-    }
+/// A prior in the key's unit, scaled to internal units, with its
+/// support checked against the physical domain.
+fn prior_at(
+    s: &Section<'_>,
+    key: &str,
+    scale: f64,
+    domain: &Domain,
+) -> Result<Option<ScaledPrior>, ModelError> {
+    let Some(value) = s.get(key) else {
+        return Ok(None);
+    };
+    let prior = Prior::from_toml(value, s.file, &s.dotted(key))?;
+    check_prior_domain(s, key, &prior, domain)?;
+    Ok(Some(ScaledPrior::new(prior, scale)))
 }
 
 fn check_prior_domain(
@@ -419,15 +299,6 @@ fn check_prior_domain(
         ));
     }
     Ok(())
-}
-
-/// The line (1-based) of a byte offset in a text.
-fn line_of(text: &str, offset: usize) -> usize {
-    text.as_bytes()[..offset.min(text.len())]
-        .iter()
-        .filter(|&&b| b == b'\n')
-        .count()
-        + 1
 }
 
 impl RunConfig {
@@ -680,8 +551,8 @@ const PRIOR_KEYS: &[&str] = &[
 fn read_priors(s: &Section<'_>) -> Result<PriorSettings, ModelError> {
     s.allow_only(PRIOR_KEYS)?;
     let period = match s.one_of("period_days", "period_years")? {
-        Some("a") => s.prior("period_days", 1.0, &POSITIVE)?,
-        Some(_) => s.prior("period_years", JULIAN_YEAR_DAYS, &POSITIVE)?,
+        Some("a") => prior_at(&s, "period_days", 1.0, &POSITIVE)?,
+        Some(_) => prior_at(&s, "period_years", JULIAN_YEAR_DAYS, &POSITIVE)?,
         None => None,
     };
     let inclination = match s.get("inclination_deg") {
@@ -692,7 +563,7 @@ fn read_priors(s: &Section<'_>) -> Result<PriorSettings, ModelError> {
                 format!("the only named inclination prior is \"isotropic\", got \"{v}\"; otherwise give a prior table in degrees"),
             ))
         }
-        Some(_) => s.prior("inclination_deg", DEG, &INCLINATION_DEG)?.map(InclinationPrior::Angle),
+        Some(_) => prior_at(&s, "inclination_deg", DEG, &INCLINATION_DEG)?.map(InclinationPrior::Angle),
         None => None,
     };
     let mut instruments = BTreeMap::new();
@@ -703,25 +574,25 @@ fn read_priors(s: &Section<'_>) -> Result<PriorSettings, ModelError> {
             instruments.insert(
                 name.clone(),
                 InstrumentPriors {
-                    offset: one.prior("offset_kms", 1.0, &ANY)?,
-                    jitter: one.prior("jitter_kms", 1.0, &NON_NEGATIVE)?,
+                    offset: prior_at(&one, "offset_kms", 1.0, &ANY)?,
+                    jitter: prior_at(&one, "jitter_kms", 1.0, &NON_NEGATIVE)?,
                 },
             );
         }
     }
     Ok(PriorSettings {
         period,
-        eccentricity: s.prior("eccentricity", 1.0, &ECCENTRICITY)?,
-        omega: s.prior("periastron_argument_deg", DEG, &ANY)?,
+        eccentricity: prior_at(&s, "eccentricity", 1.0, &ECCENTRICITY)?,
+        omega: prior_at(&s, "periastron_argument_deg", DEG, &ANY)?,
         inclination,
-        node: s.prior("node_deg", DEG, &ANY)?,
-        total_mass: s.prior("total_mass_msun", 1.0, &POSITIVE)?,
-        parallax: s.prior("parallax_mas", 1.0, &POSITIVE)?,
-        mass_ratio: s.prior("mass_ratio", 1.0, &NON_NEGATIVE)?,
-        k1: s.prior("primary_semi_amplitude_kms", 1.0, &POSITIVE)?,
-        k2: s.prior("secondary_semi_amplitude_kms", 1.0, &POSITIVE)?,
-        offset: s.prior("offset_kms", 1.0, &ANY)?,
-        jitter: s.prior("jitter_kms", 1.0, &NON_NEGATIVE)?,
+        node: prior_at(&s, "node_deg", DEG, &ANY)?,
+        total_mass: prior_at(&s, "total_mass_msun", 1.0, &POSITIVE)?,
+        parallax: prior_at(&s, "parallax_mas", 1.0, &POSITIVE)?,
+        mass_ratio: prior_at(&s, "mass_ratio", 1.0, &NON_NEGATIVE)?,
+        k1: prior_at(&s, "primary_semi_amplitude_kms", 1.0, &POSITIVE)?,
+        k2: prior_at(&s, "secondary_semi_amplitude_kms", 1.0, &POSITIVE)?,
+        offset: prior_at(&s, "offset_kms", 1.0, &ANY)?,
+        jitter: prior_at(&s, "jitter_kms", 1.0, &NON_NEGATIVE)?,
         instruments,
     })
 }

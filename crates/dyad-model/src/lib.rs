@@ -27,5 +27,6 @@ pub mod params;
 pub mod prior;
 pub mod simulate;
 pub mod start;
+mod toml_walk;
 
 pub use error::ModelError;

@@ -6,3 +6,4 @@ mod common;
 mod config_errors;
 mod jacobians;
 mod likelihood;
+mod simulate;
