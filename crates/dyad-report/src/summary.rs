@@ -5,6 +5,7 @@ use crate::atomic::write_atomically;
 use crate::error::ReportError;
 use crate::input::{PosteriorDraws, RunMetadata};
 use crate::stats::{ParameterSummary, PosteriorSummary};
+use std::fmt::Write as _;
 use std::path::Path;
 
 /// Number of decimals that give the smaller 68 % half-width two significant
@@ -281,14 +282,18 @@ pub fn write_samples_csv(path: &Path, draws: &PosteriorDraws) -> Result<(), Repo
     let n_params = draws.n_params();
     write_atomically(path, |w| {
         let io = |e| ReportError::io(path, e);
-        writeln!(w, "{}", names.join(",")).map_err(io)?;
+        w.write_all(names.join(",").as_bytes()).map_err(io)?;
+        w.write_all(b"\n").map_err(io)?;
         let mut line = String::with_capacity(24 * (n_params + 1));
         for (d, lp) in draws.log_posterior.iter().enumerate() {
             line.clear();
+            // Debug formatting of f64 is the shortest string that parses
+            // back to the same bits; writing into one reused buffer keeps
+            // the per-row loop free of allocations.
             for v in &draws.values[d * n_params..(d + 1) * n_params] {
-                line.push_str(&format!("{v:?},"));
+                let _ = write!(line, "{v:?},");
             }
-            line.push_str(&format!("{lp:?}\n"));
+            let _ = writeln!(line, "{lp:?}");
             w.write_all(line.as_bytes()).map_err(io)?;
         }
         Ok(())

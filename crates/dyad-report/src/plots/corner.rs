@@ -20,7 +20,7 @@ const NAME: &str = "corner";
 const BINS_1D: usize = 40;
 const BINS_2D: usize = 40;
 const SMOOTH_BINS: f64 = 1.2;
-const MAX_OUTLIER_DOTS: usize = 4000;
+const MAX_OUTLIER_DOTS: usize = 2000;
 const FILL_SUBDIVISION: usize = 4;
 
 struct Column {
