@@ -1,0 +1,80 @@
+//! Every move alone, and a mixture, on one shared Gaussian target (the way
+//! a general-purpose ensemble sampler tests its moves; common practice).
+
+use crate::common::*;
+use dyad_sampler::{run, MemorySink, Move, MoveMixture, RunConfig, RunControl, RunStatus, Start};
+
+fn check_move(mixture: MoveMixture, seed: u64) {
+    let d = 4;
+    let centre = vec![1.0, -2.0, 0.5, 3.0];
+    let target = Gaussian::rotated(centre, &[0.1, 0.5, 2.0, 10.0], 11);
+    let nw = 24;
+    let mut config = RunConfig::new(nw, seed, 300_000);
+    config.moves = mixture.clone();
+    let start = Start::Ball {
+        centre: vec![0.0; d],
+        scale: vec![0.5; d],
+    };
+    let mut sink = MemorySink::for_samples(d, nw);
+    let result = run(&target, &config, &start, &mut sink, RunControl::default()).unwrap();
+    assert_eq!(
+        result.status,
+        RunStatus::Converged,
+        "{mixture:?}: {:?}",
+        result.warnings
+    );
+    let draws = draws_after(sink.table(), d, result.burn_in);
+    for i in 0..d {
+        let cii = target.cov[i * d + i];
+        let ess = draws.ess[i];
+        assert_within(
+            &format!("{mixture:?}: mean of x{i}"),
+            mean(&draws.columns[i]),
+            target.mean[i],
+            (cii / ess).sqrt(),
+            4.0,
+        );
+        assert_within(
+            &format!("{mixture:?}: variance of x{i}"),
+            covariance(&draws.columns[i], &draws.columns[i]),
+            cii,
+            (2.0 * cii * cii / ess).sqrt(),
+            4.0,
+        );
+    }
+}
+
+#[test]
+fn stretch_move_alone() {
+    check_move(MoveMixture::single(Move::stretch()), 1);
+}
+
+#[test]
+fn differential_evolution_move_alone() {
+    check_move(MoveMixture::single(Move::differential_evolution()), 2);
+}
+
+#[test]
+fn walk_move_alone() {
+    check_move(MoveMixture::single(Move::Walk { subset: Some(5) }), 3);
+}
+
+#[test]
+fn weighted_mixture_of_all_moves() {
+    let m = MoveMixture::new(vec![
+        (Move::stretch(), 0.6),
+        (Move::differential_evolution(), 0.3),
+        (Move::walk(), 0.1),
+    ])
+    .unwrap();
+    check_move(m, 4);
+}
+
+#[test]
+fn mixture_rejects_bad_weights_and_parameters() {
+    assert!(MoveMixture::new(vec![]).is_err());
+    assert!(MoveMixture::new(vec![(Move::stretch(), 0.0)]).is_err());
+    assert!(MoveMixture::new(vec![(Move::stretch(), -1.0)]).is_err());
+    assert!(MoveMixture::new(vec![(Move::Stretch { a: 1.0 }, 1.0)]).is_err());
+    assert!(MoveMixture::new(vec![(Move::Walk { subset: Some(1) }, 1.0)]).is_err());
+}
