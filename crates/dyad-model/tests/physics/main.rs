@@ -7,3 +7,4 @@ mod config_errors;
 mod jacobians;
 mod likelihood;
 mod simulate;
+mod start;
