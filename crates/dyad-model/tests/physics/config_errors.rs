@@ -250,3 +250,17 @@ fn good_configuration_loads() {
         priors.period_days.contains(50.0 * 365.25) && !priors.period_days.contains(200.0 * 365.25)
     );
 }
+
+#[test]
+fn shipped_configurations_load() {
+    let configs = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../../configs");
+    for name in ["demo.toml", "sparse.toml"] {
+        let config = RunConfig::load(&configs.join(name)).unwrap_or_else(|e| panic!("{name}: {e}"));
+        let model = Model::from_config(&config).unwrap_or_else(|e| panic!("{name}: {e}"));
+        assert!(model.dim() >= 10, "{name}: {:?}", model.parameter_names());
+        assert!(
+            config.sampler.walkers >= 2 * model.dim(),
+            "{name}: too few walkers"
+        );
+    }
+}
