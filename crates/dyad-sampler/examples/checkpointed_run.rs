@@ -59,7 +59,10 @@ fn go(folder: PathBuf, total: u64, resuming: bool) -> Result<(), dyad_sampler::S
     let mut config = RunConfig::new(16, 20_261_201, total);
     config.convergence = None;
     config.thin = 2;
-    config.moves = MoveMixture::new(vec![(Move::stretch(), 0.7), (Move::differential_evolution(), 0.3)])?;
+    config.moves = MoveMixture::new(vec![
+        (Move::stretch(), 0.7),
+        (Move::differential_evolution(), 0.3),
+    ])?;
     config.checkpoint = Some(CheckpointConfig::new(
         folder.join("state.ckpt"),
         Duration::from_millis(50),
@@ -76,7 +79,8 @@ fn go(folder: PathBuf, total: u64, resuming: bool) -> Result<(), dyad_sampler::S
         bar.set_message(format!(
             "acceptance {:.2}, eta {}",
             p.acceptance,
-            p.eta.map_or("?".into(), |d| format!("{:.0} s", d.as_secs_f64()))
+            p.eta
+                .map_or("?".into(), |d| format!("{:.0} s", d.as_secs_f64()))
         ));
     };
     let control = RunControl {

@@ -57,7 +57,10 @@ impl<'a> Decoder<'a> {
     }
     pub fn u64(&mut self) -> Result<u64, SamplerError> {
         let end = self.pos + 8;
-        let b = self.buf.get(self.pos..end).ok_or_else(|| self.fail("a number"))?;
+        let b = self
+            .buf
+            .get(self.pos..end)
+            .ok_or_else(|| self.fail("a number"))?;
         let mut a = [0u8; 8];
         a.copy_from_slice(b);
         self.pos = end;
@@ -89,7 +92,10 @@ impl<'a> Decoder<'a> {
     pub fn bytes(&mut self) -> Result<&'a [u8], SamplerError> {
         let n = self.usize()?;
         let end = self.pos.checked_add(n).ok_or_else(|| self.fail("bytes"))?;
-        let b = self.buf.get(self.pos..end).ok_or_else(|| self.fail("bytes"))?;
+        let b = self
+            .buf
+            .get(self.pos..end)
+            .ok_or_else(|| self.fail("bytes"))?;
         self.pos = end;
         Ok(b)
     }
@@ -110,7 +116,8 @@ pub(crate) fn write_atomic(path: &Path, payload: &[u8]) -> Result<(), SamplerErr
         f.write_all(MAGIC).map_err(|e| SamplerError::io(&tmp, e))?;
         f.write_all(&(payload.len() as u64).to_le_bytes())
             .map_err(|e| SamplerError::io(&tmp, e))?;
-        f.write_all(payload).map_err(|e| SamplerError::io(&tmp, e))?;
+        f.write_all(payload)
+            .map_err(|e| SamplerError::io(&tmp, e))?;
         f.sync_all().map_err(|e| SamplerError::io(&tmp, e))?;
     }
     fs::rename(&tmp, path).map_err(|e| SamplerError::io(path, e))?;
@@ -143,7 +150,10 @@ pub(crate) fn read_payload(path: &Path) -> Result<Vec<u8>, SamplerError> {
     if bytes.len() != 16 + n {
         return Err(SamplerError::BadFile {
             path: path.to_path_buf(),
-            reason: format!("checkpoint length {} does not match its header", bytes.len()),
+            reason: format!(
+                "checkpoint length {} does not match its header",
+                bytes.len()
+            ),
         });
     }
     Ok(bytes[16..].to_vec())

@@ -46,7 +46,7 @@ impl History {
 
     /// Whether the snapshot after absolute step `step` should be recorded.
     pub fn wants(&self, step: u64) -> bool {
-        step > self.start && (step - self.start) % self.thin == 0
+        step > self.start && (step - self.start).is_multiple_of(self.thin)
     }
 
     /// Records positions (walker-major, `positions(w)` = walker w's position).

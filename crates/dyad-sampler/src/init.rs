@@ -78,13 +78,17 @@ pub(crate) fn place_walkers<D: LogDensity + ?Sized>(
             }
             pos.copy_from_slice(p);
             for w in 0..n_walkers {
-                let (lp, ll) = density_at(density, &pos[w * dim..(w + 1) * dim]).ok_or_else(
-                    || SamplerError::BadEnsemble {
-                        problem: format!("walker {w} starts where the density is zero or not finite"),
-                        advice: "move it inside the prior support and where the likelihood is finite"
-                            .into(),
-                    },
-                )?;
+                let (lp, ll) =
+                    density_at(density, &pos[w * dim..(w + 1) * dim]).ok_or_else(|| {
+                        SamplerError::BadEnsemble {
+                        problem: format!(
+                            "walker {w} starts where the density is zero or not finite"
+                        ),
+                        advice:
+                            "move it inside the prior support and where the likelihood is finite"
+                                .into(),
+                    }
+                    })?;
                 lps[w] = lp;
                 lls[w] = ll;
             }
@@ -165,7 +169,7 @@ pub fn ensemble_rank(positions: &[f64], n_walkers: usize, dim: usize) -> usize {
     let mut basis: Vec<Vec<f64>> = Vec::new();
     for col in cols.iter_mut() {
         let norm0 = col.iter().map(|v| v * v).sum::<f64>().sqrt();
-        if !(norm0 > 0.0) || !norm0.is_finite() {
+        if norm0.is_nan() || norm0 <= 0.0 || !norm0.is_finite() {
             continue;
         }
         for q in &basis {
@@ -222,11 +226,9 @@ pub fn check_initial_ensemble(
 
 pub(crate) fn check_walker_count(n_walkers: usize, dim: usize) -> Result<(), SamplerError> {
     if dim == 0 {
-        return Err(SamplerError::Config(
-            "the density has no parameters".into(),
-        ));
+        return Err(SamplerError::Config("the density has no parameters".into()));
     }
-    if n_walkers % 2 != 0 || n_walkers < 2 * dim + 2 {
+    if !n_walkers.is_multiple_of(2) || n_walkers < 2 * dim + 2 {
         return Err(SamplerError::BadEnsemble {
             problem: format!("{n_walkers} walkers for {dim} parameters"),
             advice: format!(

@@ -65,8 +65,8 @@ pub use init::{check_initial_ensemble, ensemble_rank, DrawFn, Start};
 pub use moves::{Move, MoveMixture};
 pub use rng::StreamRng;
 pub use run::{
-    checkpoint_step, resume, run, CheckpointConfig, Convergence, Progress, RunConfig,
-    RunControl, RunDiagnostics, RunResult, RunStatus, StuckWalker,
+    checkpoint_step, resume, run, CheckpointConfig, Convergence, Progress, RunConfig, RunControl,
+    RunDiagnostics, RunResult, RunStatus, StuckWalker,
 };
 pub use storage::{read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink};
 pub use tempering::{TemperedLogLikelihoods, TemperingConfig};

@@ -115,7 +115,10 @@ impl MoveMixture {
             return Err(SamplerError::Config("the move mixture is empty".into()));
         }
         let total: f64 = entries.iter().map(|(_, w)| *w).sum();
-        if entries.iter().any(|(_, w)| !(*w >= 0.0 && w.is_finite())) || !(total > 0.0) {
+        if entries.iter().any(|(_, w)| !(*w >= 0.0 && w.is_finite()))
+            || total.is_nan()
+            || total <= 0.0
+        {
             return Err(SamplerError::Config(
                 "move weights must be finite, >= 0 and not all zero".into(),
             ));
@@ -201,7 +204,11 @@ where
     F: Fn(usize) -> &'c [f64],
 {
     let dim = x.len();
-    let u: f64 = if mixture.moves.len() > 1 { rng.gen() } else { 0.0 };
+    let u: f64 = if mixture.moves.len() > 1 {
+        rng.gen()
+    } else {
+        0.0
+    };
     let y = &mut scratch.proposal;
     match *mixture.pick(u) {
         Move::Stretch { a } => {

@@ -145,10 +145,14 @@ impl RunConfig {
             return Err(SamplerError::Config("thin must be at least 1".into()));
         }
         if self.progress_every == 0 {
-            return Err(SamplerError::Config("progress_every must be at least 1".into()));
+            return Err(SamplerError::Config(
+                "progress_every must be at least 1".into(),
+            ));
         }
         if self.start_tries == 0 {
-            return Err(SamplerError::Config("start_tries must be at least 1".into()));
+            return Err(SamplerError::Config(
+                "start_tries must be at least 1".into(),
+            ));
         }
         if let Some(c) = &self.convergence {
             if !(c.tau_multiple > 0.0 && c.max_relative_change > 0.0 && c.burn_in_taus >= 0.0)
@@ -330,7 +334,11 @@ impl State {
             rungs.push(Rung { beta, walkers });
         }
         let mut ladder = Ladder::new(n_temps, nw);
-        if config.tempering.as_ref().is_some_and(|t| t.burn_in_steps == 0) {
+        if config
+            .tempering
+            .as_ref()
+            .is_some_and(|t| t.burn_in_steps == 0)
+        {
             ladder.frozen = true;
         }
         Ok(Self {
@@ -392,7 +400,12 @@ impl State {
     }
 
     /// Restores a checkpoint into `self` (a freshly built state of the same shape).
-    fn decode(&mut self, payload: &[u8], path: &Path, fingerprint: &str) -> Result<(), SamplerError> {
+    fn decode(
+        &mut self,
+        payload: &[u8],
+        path: &Path,
+        fingerprint: &str,
+    ) -> Result<(), SamplerError> {
         let mut d = Decoder {
             buf: payload,
             pos: 0,
@@ -542,7 +555,14 @@ pub fn run<D: LogDensity + ?Sized>(
     if let Some(l) = ladder_store.as_mut() {
         state.ladder_position = l.sink().sync()?;
     }
-    drive(density, config, &mut state, samples, ladder_store.as_mut(), control)
+    drive(
+        density,
+        config,
+        &mut state,
+        samples,
+        ladder_store.as_mut(),
+        control,
+    )
 }
 
 /// Resumes the run checkpointed at `config.checkpoint`, up to `config.max_steps`
@@ -572,7 +592,14 @@ pub fn resume<D: LogDensity + ?Sized>(
             Some(LadderStore::File(f))
         }
     };
-    drive(density, config, &mut state, samples, ladder_store.as_mut(), control)
+    drive(
+        density,
+        config,
+        &mut state,
+        samples,
+        ladder_store.as_mut(),
+        control,
+    )
 }
 
 /// Step count stored in a checkpoint (e.g. to tell a user how far a run got).
@@ -701,7 +728,7 @@ fn drive<D: LogDensity + ?Sized>(
             state.next_check = first_check(config, step);
         }
 
-        if step % config.thin == 0 {
+        if step.is_multiple_of(config.thin) {
             for (w, walker) in state.cold().walkers.iter().enumerate() {
                 let rec = &mut record[w * (dim + 2)..(w + 1) * (dim + 2)];
                 rec[..dim].copy_from_slice(&walker.position);
@@ -732,7 +759,7 @@ fn drive<D: LogDensity + ?Sized>(
             }
         }
 
-        if step % config.progress_every == 0 {
+        if step.is_multiple_of(config.progress_every) {
             if let Some(cb) = control.progress.as_deref_mut() {
                 let (acc, prop) = state.cold_counts();
                 let acceptance = if prop > prop_prev {
@@ -742,7 +769,9 @@ fn drive<D: LogDensity + ?Sized>(
                 };
                 acc_prev = acc;
                 prop_prev = prop;
-                cb(&progress_report(config, state, started, start_step, acceptance));
+                cb(&progress_report(
+                    config, state, started, start_step, acceptance,
+                ));
             }
         }
 
@@ -819,9 +848,9 @@ fn progress_report(
     let tau_max = (!state.last_tau.is_empty() && state.last_tau.iter().all(|t| t.is_finite()))
         .then(|| state.last_tau.iter().cloned().fold(0.0, f64::max));
     let target_steps = match (&config.convergence, tau_max) {
-        (Some(c), Some(t)) => {
-            Some(((state.history.start as f64 + c.tau_multiple * t).ceil() as u64).min(config.max_steps))
-        }
+        (Some(c), Some(t)) => Some(
+            ((state.history.start as f64 + c.tau_multiple * t).ceil() as u64).min(config.max_steps),
+        ),
         _ => None,
     };
     let goal = target_steps.unwrap_or(config.max_steps).max(state.step);
@@ -885,7 +914,11 @@ fn finish(
         ess_b.push(ess_bulk(draws, n_used, h.n_walkers));
         ess_t.push(ess_tail(draws, n_used, h.n_walkers));
     }
-    let tau_max = tau.iter().cloned().filter(|t| t.is_finite()).fold(0.0, f64::max);
+    let tau_max = tau
+        .iter()
+        .cloned()
+        .filter(|t| t.is_finite())
+        .fold(0.0, f64::max);
 
     let mut sorted = acceptance.clone();
     sorted.sort_by(f64::total_cmp);
@@ -985,6 +1018,10 @@ fn finish(
         betas,
         swap_acceptance: state.ladder.acceptance(),
         tempered,
-        final_positions: cold.walkers.iter().flat_map(|w| w.position.iter().copied()).collect(),
+        final_positions: cold
+            .walkers
+            .iter()
+            .flat_map(|w| w.position.iter().copied())
+            .collect(),
     })
 }

@@ -263,9 +263,13 @@ impl SampleSink for FileSink {
     }
     fn truncate(&mut self, position: u64) -> Result<(), SamplerError> {
         let path = self.path.clone();
-        self.writer.flush().map_err(|e| SamplerError::io(&path, e))?;
+        self.writer
+            .flush()
+            .map_err(|e| SamplerError::io(&path, e))?;
         let record = 8 * (1 + self.width as u64);
-        if position < HEADER_LEN || (position - HEADER_LEN) % record != 0 || position > self.position
+        if position < HEADER_LEN
+            || !(position - HEADER_LEN).is_multiple_of(record)
+            || position > self.position
         {
             return Err(SamplerError::BadFile {
                 path,

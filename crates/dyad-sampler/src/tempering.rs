@@ -68,7 +68,7 @@ impl TemperingConfig {
                 "parallel tempering needs at least 2 temperatures".into(),
             ));
         }
-        if !(self.max_temperature > 1.0) {
+        if self.max_temperature.is_nan() || self.max_temperature <= 1.0 {
             return Err(SamplerError::Config(format!(
                 "the hottest temperature must exceed 1, got {}",
                 self.max_temperature

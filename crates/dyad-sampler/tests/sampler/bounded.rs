@@ -46,8 +46,22 @@ fn truncated_exponential_and_box() {
     assert_within("E[x1]", mean(x1), mean1, (var1 / draws.ess[0]).sqrt(), 4.0);
     let norm = 1.0 - (-2.0f64).exp();
     let d1 = ks_statistic(x1, |v| (1.0 - (-v).exp()) / norm);
-    assert!(d1 * draws.ess[0].sqrt() < 1.95, "KS x1: D = {d1}, ESS {}", draws.ess[0]);
+    assert!(
+        d1 * draws.ess[0].sqrt() < 1.95,
+        "KS x1: D = {d1}, ESS {}",
+        draws.ess[0]
+    );
     let d2 = ks_statistic(x2, |v| (v + 1.0) / 2.0);
-    assert!(d2 * draws.ess[1].sqrt() < 1.95, "KS x2: D = {d2}, ESS {}", draws.ess[1]);
-    assert_within("Var x2", covariance(x2, x2), 1.0 / 3.0, (4.0 / 45.0 / draws.ess[1]).sqrt(), 4.0);
+    assert!(
+        d2 * draws.ess[1].sqrt() < 1.95,
+        "KS x2: D = {d2}, ESS {}",
+        draws.ess[1]
+    );
+    assert_within(
+        "Var x2",
+        covariance(x2, x2),
+        1.0 / 3.0,
+        (4.0 / 45.0 / draws.ess[1]).sqrt(),
+        4.0,
+    );
 }

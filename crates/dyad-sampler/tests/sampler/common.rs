@@ -34,10 +34,6 @@ impl Gaussian {
             precision,
         }
     }
-
-    pub fn dim(&self) -> usize {
-        self.mean.len()
-    }
 }
 
 impl LogDensity for Gaussian {
@@ -90,8 +86,6 @@ pub fn random_rotation(d: usize, seed: u64) -> Vec<f64> {
 pub struct Draws {
     pub columns: Vec<Vec<f64>>,
     pub ess: Vec<f64>,
-    pub n_steps: usize,
-    pub n_walkers: usize,
 }
 
 pub fn draws_after(table: &RecordTable, dim: usize, burn_in: u64) -> Draws {
@@ -102,12 +96,7 @@ pub fn draws_after(table: &RecordTable, dim: usize, burn_in: u64) -> Draws {
         .iter()
         .map(|c| ess_bulk(c, n_steps, table.n_walkers))
         .collect();
-    Draws {
-        columns,
-        ess,
-        n_steps,
-        n_walkers: table.n_walkers,
-    }
+    Draws { columns, ess }
 }
 
 pub fn mean(v: &[f64]) -> f64 {

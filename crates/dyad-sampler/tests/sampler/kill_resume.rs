@@ -42,7 +42,10 @@ fn killed_and_resumed_run_matches_uninterrupted_run() {
     let finished_early = child.try_wait().unwrap().is_some();
     child.kill().unwrap();
     child.wait().unwrap();
-    assert!(!finished_early, "the run ended before it could be killed; make it longer");
+    assert!(
+        !finished_early,
+        "the run ended before it could be killed; make it longer"
+    );
     let step = dyad_sampler::checkpoint_step(&ckpt).unwrap();
     assert!(step > 0 && step < 1500, "checkpoint at step {step}");
 
@@ -57,5 +60,8 @@ fn killed_and_resumed_run_matches_uninterrupted_run() {
     let sb = std::fs::read(b.join("samples.bin")).unwrap();
     assert_eq!(sa.len(), sb.len());
     assert!(sa == sb, "sample files differ after kill and resume");
-    assert_eq!(dyad_sampler::checkpoint_step(b.join("state.ckpt")).unwrap(), 1500);
+    assert_eq!(
+        dyad_sampler::checkpoint_step(b.join("state.ckpt")).unwrap(),
+        1500
+    );
 }

@@ -1,6 +1,13 @@
 //! Integration tests of the ensemble sampler, compiled into one test binary.
 
+// Index loops mirror the matrix formulas they implement.
+#![allow(clippy::needless_range_loop)]
+
 mod common;
+
+mod alloc;
+#[global_allocator]
+static COUNTING: alloc::CountingAllocator = alloc::CountingAllocator;
 
 mod bounded;
 mod curved;

@@ -8,8 +8,8 @@ use std::time::Duration;
 use crate::common::Gaussian;
 use dyad_sampler::{
     checkpoint_step, resume, run, CheckpointConfig, FileSink, MemorySink, Move, MoveMixture,
-    Progress, RecordTable, RunConfig, SampleSink, RunControl, RunResult, RunStatus, SamplerError, Start,
-    TemperingConfig,
+    Progress, RecordTable, RunConfig, RunControl, RunResult, RunStatus, SampleSink, SamplerError,
+    Start, TemperingConfig,
 };
 
 fn target() -> Gaussian {
@@ -43,7 +43,14 @@ fn run_in_pool(threads: usize, config: &RunConfig) -> (RecordTable, RunResult) {
         .unwrap();
     pool.install(|| {
         let mut sink = MemorySink::for_samples(3, config.n_walkers);
-        let r = run(&target(), config, &start(), &mut sink, RunControl::default()).unwrap();
+        let r = run(
+            &target(),
+            config,
+            &start(),
+            &mut sink,
+            RunControl::default(),
+        )
+        .unwrap();
         (sink.into_table(), r)
     })
 }
@@ -82,9 +89,20 @@ fn stop_and_resume(mut c: RunConfig, dim: usize) {
     let total = c.max_steps;
     // Uninterrupted reference, with frequent checkpoints of its own (their
     // timing must not matter).
-    c.checkpoint = Some(CheckpointConfig::new(dir.path().join("a.ckpt"), Duration::from_millis(20)));
-    let mut ref_sink = FileSink::create_samples(dir.path().join("a.bin"), dim, c.n_walkers).unwrap();
-    let reference = run(&target(), &c, &start(), &mut ref_sink, RunControl::default()).unwrap();
+    c.checkpoint = Some(CheckpointConfig::new(
+        dir.path().join("a.ckpt"),
+        Duration::from_millis(20),
+    ));
+    let mut ref_sink =
+        FileSink::create_samples(dir.path().join("a.bin"), dim, c.n_walkers).unwrap();
+    let reference = run(
+        &target(),
+        &c,
+        &start(),
+        &mut ref_sink,
+        RunControl::default(),
+    )
+    .unwrap();
     drop(ref_sink);
 
     // The same run cancelled part-way (from the progress callback), then resumed to the total.
@@ -115,14 +133,18 @@ fn stop_and_resume(mut c: RunConfig, dim: usize) {
     assert_eq!(checkpoint_step(&ckpt).unwrap(), 250);
     // Simulate a crash after the checkpoint: junk appended to the sample file
     // must be cut off on resume.
-    sink.append(999_999, &vec![1.0; c.n_walkers * (dim + 2)]).unwrap();
+    sink.append(999_999, &vec![1.0; c.n_walkers * (dim + 2)])
+        .unwrap();
     drop(sink);
     let mut sink = FileSink::open(dir.path().join("b.bin")).unwrap();
     let resumed = resume(&target(), &c, &mut sink, RunControl::default()).unwrap();
     drop(sink);
     assert_eq!(resumed.steps, reference.steps);
     if reference.status == RunStatus::StepCap {
-        assert_eq!(resumed.steps, total, "resume runs to the total, not that many more");
+        assert_eq!(
+            resumed.steps, total,
+            "resume runs to the total, not that many more"
+        );
     }
     assert_eq!(resumed.status, reference.status);
     let a = std::fs::read(dir.path().join("a.bin")).unwrap();
@@ -130,7 +152,10 @@ fn stop_and_resume(mut c: RunConfig, dim: usize) {
     assert_eq!(a.len(), b.len());
     assert!(a == b, "sample files differ");
     assert_eq!(resumed.final_positions, reference.final_positions);
-    assert_eq!(resumed.diagnostics.acceptance, reference.diagnostics.acceptance);
+    assert_eq!(
+        resumed.diagnostics.acceptance,
+        reference.diagnostics.acceptance
+    );
     assert_eq!(resumed.betas, reference.betas);
     assert_eq!(resumed.tempered, reference.tempered);
 
@@ -173,7 +198,10 @@ fn cancelled_and_resumed_tempered_run_is_bit_identical() {
 fn resume_with_another_configuration_is_refused() {
     let dir = tempfile::tempdir().unwrap();
     let mut c = config();
-    c.checkpoint = Some(CheckpointConfig::new(dir.path().join("c.ckpt"), Duration::ZERO));
+    c.checkpoint = Some(CheckpointConfig::new(
+        dir.path().join("c.ckpt"),
+        Duration::ZERO,
+    ));
     let mut sink = MemorySink::for_samples(3, c.n_walkers);
     run(&target(), &c, &start(), &mut sink, RunControl::default()).unwrap();
     c.seed += 1;

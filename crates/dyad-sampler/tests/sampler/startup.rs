@@ -18,8 +18,14 @@ fn too_few_or_odd_walkers_are_refused_with_advice() {
         scale: vec![1.0; 3],
     };
     for nw in [6, 7, 9] {
-        let err = run(&normal3(), &RunConfig::new(nw, 1, 10), &start, &mut sink, RunControl::default())
-            .unwrap_err();
+        let err = run(
+            &normal3(),
+            &RunConfig::new(nw, 1, 10),
+            &start,
+            &mut sink,
+            RunControl::default(),
+        )
+        .unwrap_err();
         match err {
             SamplerError::BadEnsemble { advice, .. } => {
                 assert!(advice.contains("more than twice"), "{advice}")
@@ -36,8 +42,14 @@ fn zero_spread_ball_is_degenerate() {
         centre: vec![0.0; 3],
         scale: vec![1.0, 0.0, 1.0],
     };
-    let err = run(&normal3(), &RunConfig::new(8, 1, 10), &start, &mut sink, RunControl::default())
-        .unwrap_err();
+    let err = run(
+        &normal3(),
+        &RunConfig::new(8, 1, 10),
+        &start,
+        &mut sink,
+        RunControl::default(),
+    )
+    .unwrap_err();
     assert!(matches!(err, SamplerError::BadEnsemble { .. }), "{err}");
     assert!(err.to_string().contains("spread"), "{err}");
 }
@@ -45,7 +57,9 @@ fn zero_spread_ball_is_degenerate() {
 #[test]
 fn walkers_on_a_line_span_one_dimension() {
     // 8 walkers on the line x = y = z: rank 1 of 3.
-    let pos: Vec<f64> = (0..8).flat_map(|w| [w as f64, w as f64, w as f64]).collect();
+    let pos: Vec<f64> = (0..8)
+        .flat_map(|w| [w as f64, w as f64, w as f64])
+        .collect();
     assert_eq!(ensemble_rank(&pos, 8, 3), 1);
     let err = check_initial_ensemble(&pos, 8, 3).unwrap_err();
     assert!(err.to_string().contains("spans only 1 of 3"), "{err}");
@@ -109,10 +123,23 @@ fn no_valid_start_after_n_tries_is_a_typed_error() {
             *v = rng.gen::<f64>();
         }
     };
-    let err = run(&target, &config, &Start::Draws(&draw), &mut sink, RunControl::default())
-        .unwrap_err();
+    let err = run(
+        &target,
+        &config,
+        &Start::Draws(&draw),
+        &mut sink,
+        RunControl::default(),
+    )
+    .unwrap_err();
     assert!(
-        matches!(err, SamplerError::NoValidStart { walker: 0, rung: 0, tries: 50 }),
+        matches!(
+            err,
+            SamplerError::NoValidStart {
+                walker: 0,
+                rung: 0,
+                tries: 50
+            }
+        ),
         "{err}"
     );
 }
@@ -133,7 +160,14 @@ fn prior_draws_skip_points_of_zero_density() {
     let mut config = RunConfig::new(8, 3, 1);
     config.convergence = None;
     let mut sink = MemorySink::for_samples(2, 8);
-    run(&target, &config, &Start::Draws(&draw), &mut sink, RunControl::default()).unwrap();
+    run(
+        &target,
+        &config,
+        &Start::Draws(&draw),
+        &mut sink,
+        RunControl::default(),
+    )
+    .unwrap();
     let table = sink.table();
     assert_eq!(table.len(), 1);
     assert!(table.column(0, 0).iter().all(|v| *v > 0.0));

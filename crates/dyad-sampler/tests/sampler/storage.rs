@@ -8,7 +8,10 @@ fn file_sink_round_trip_and_truncate() {
     let path = dir.path().join("s.bin");
     let mut f = FileSink::create_samples(&path, 1, 2).unwrap();
     let mut m = MemorySink::for_samples(1, 2);
-    let recs = [[1.0, 2.0, 3.0, 4.0, 5.0, 6.0], [-1.5, f64::MIN_POSITIVE, 0.1, 1e300, -0.0, 7.0]];
+    let recs = [
+        [1.0, 2.0, 3.0, 4.0, 5.0, 6.0],
+        [-1.5, f64::MIN_POSITIVE, 0.1, 1e300, -0.0, 7.0],
+    ];
     f.append(10, &recs[0]).unwrap();
     m.append(10, &recs[0]).unwrap();
     let pos_f = f.sync().unwrap();
@@ -48,5 +51,8 @@ fn partial_trailing_record_is_ignored_and_wrong_files_are_refused() {
     std::fs::write(&path, &bytes).unwrap();
     assert_eq!(read_record_file(&path).unwrap().len(), 1);
     std::fs::write(&path, b"not a record file at all, no no no").unwrap();
-    assert!(matches!(read_record_file(&path), Err(SamplerError::BadFile { .. })));
+    assert!(matches!(
+        read_record_file(&path),
+        Err(SamplerError::BadFile { .. })
+    ));
 }

@@ -49,20 +49,35 @@ fn tempered_cold_chain_recovers_mode_weights() {
         ..Default::default()
     });
     let mut sink = MemorySink::for_samples(2, nw);
-    let result = run(&mixture(), &config, &start(), &mut sink, RunControl::default()).unwrap();
+    let result = run(
+        &mixture(),
+        &config,
+        &start(),
+        &mut sink,
+        RunControl::default(),
+    )
+    .unwrap();
 
     let tempered = result.tempered.as_ref().unwrap();
     assert_eq!(tempered.betas.len(), 6);
     assert_eq!(tempered.betas[0], 1.0);
     assert_eq!(*tempered.betas.last().unwrap(), 0.0);
-    assert!(tempered.betas.windows(2).all(|w| w[0] > w[1]), "{:?}", tempered.betas);
+    assert!(
+        tempered.betas.windows(2).all(|w| w[0] > w[1]),
+        "{:?}",
+        tempered.betas
+    );
     assert_eq!(tempered.n_walkers, nw);
     // Recorded from the freeze at step 1500 on (inclusive), every 2nd step.
     let n_rec = (6000 - 1500) / 2 + 1;
     for ll in &tempered.log_likelihoods {
         assert_eq!(ll.len(), n_rec * nw);
     }
-    assert!(result.swap_acceptance.iter().all(|a| *a > 0.05), "{:?}", result.swap_acceptance);
+    assert!(
+        result.swap_acceptance.iter().all(|a| *a > 0.05),
+        "{:?}",
+        result.swap_acceptance
+    );
 
     let table = sink.table();
     let first = table.first_after(1500);
@@ -92,7 +107,14 @@ fn untempered_ensemble_stays_in_its_mode() {
     let mut config = RunConfig::new(nw, 31, 3000);
     config.convergence = None;
     let mut sink = MemorySink::for_samples(2, nw);
-    run(&mixture(), &config, &start(), &mut sink, RunControl::default()).unwrap();
+    run(
+        &mixture(),
+        &config,
+        &start(),
+        &mut sink,
+        RunControl::default(),
+    )
+    .unwrap();
     assert!(sink.table().column(0, 0).iter().all(|&x| x < 0.0));
 }
 
@@ -115,7 +137,14 @@ fn adaptive_ladder_evens_out_swap_acceptance() {
             adaptation_time: 20.0,
         });
         let mut sink = MemorySink::for_samples(2, nw);
-        run(&mixture(), &config, &start(), &mut sink, RunControl::default()).unwrap()
+        run(
+            &mixture(),
+            &config,
+            &start(),
+            &mut sink,
+            RunControl::default(),
+        )
+        .unwrap()
     };
     let spread = |a: &[f64]| {
         a.iter().cloned().fold(f64::MIN, f64::max) - a.iter().cloned().fold(f64::MAX, f64::min)
