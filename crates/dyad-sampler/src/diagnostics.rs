@@ -482,12 +482,26 @@ pub fn diagnose(
 #[derive(Debug, Default)]
 pub struct DiagnosticsWorkspace {
     autocorr: AutocorrEstimator,
+    /// Loaded parameter, chain-major.
     chains: Vec<f64>,
+    /// Its split halves, chain-major.
     split: Vec<f64>,
+    /// Rank-normalised split draws, valid when `bulk_ready`.
+    bulk_z: Vec<f64>,
+    /// Split draws in ascending order, valid when `bulk_ready`.
+    sorted: Vec<f64>,
+    bulk_ready: bool,
     transformed: Vec<f64>,
     folded: Vec<f64>,
-    order: Vec<usize>,
-    sorted: Vec<f64>,
+    /// (value, index) pairs sorted by value (sorting pairs beats sorting
+    /// indices through the values: no indirection in the comparisons).
+    order: Vec<(f64, usize)>,
+    sorted_all: Vec<f64>,
+    /// Normal quantiles of the Blom scores, indexed by twice the rank
+    /// (ties give half-integer ranks), for `z_cache_n` draws; NaN = not yet
+    /// computed. Shared by all parameters of equal length.
+    z_cache: Vec<f64>,
+    z_cache_n: usize,
 }
 
 impl DiagnosticsWorkspace {
@@ -588,6 +602,7 @@ impl DiagnosticsWorkspace {
         self.chains.clear();
         self.chains.resize(n_steps * n_walkers, 0.0);
         transpose_to_chains(samples, n_steps, n_walkers, n_dim, dim, &mut self.chains);
+        self.bulk_ready = false;
         let half = n_steps / 2;
         self.split.clear();
         for chain in self.chains.chunks_exact(n_steps) {
@@ -596,26 +611,45 @@ impl DiagnosticsWorkspace {
         }
     }
 
+    /// Rank-normalise the split draws once per loaded parameter (shared by
+    /// R-hat and bulk ESS) and keep them sorted (for the median and the
+    /// quantiles).
+    fn ensure_bulk(&mut self) {
+        if self.bulk_ready {
+            return;
+        }
+        let split = std::mem::take(&mut self.split);
+        let mut z = std::mem::take(&mut self.bulk_z);
+        self.z_scale_into(&split, &mut z);
+        self.sorted.clear();
+        self.sorted.extend(self.order.iter().map(|&(x, _)| x));
+        self.split = split;
+        self.bulk_z = z;
+        self.bulk_ready = true;
+    }
+
     fn rhat_loaded(&mut self, n_steps: usize, n_walkers: usize) -> f64 {
         let half = n_steps / 2;
         let n_chain = 2 * n_walkers;
-        // Bulk: rank-normalise the split chains (Vehtari et al. 2021, eq. 14).
-        let mut z = std::mem::take(&mut self.transformed);
-        let split = std::mem::take(&mut self.split);
-        self.z_scale_into(&split, &mut z);
-        self.split = split;
-        let bulk = rhat_basic(&z, n_chain, half);
+        // Bulk: rank-normalised split chains (Vehtari et al. 2021, eq. 14).
+        self.ensure_bulk();
+        let bulk = rhat_basic(&self.bulk_z, n_chain, half);
         // Tail: fold about the median of the split draws, then rank-normalise
         // (Vehtari et al. 2021, sect. 4.2).
-        let median = self.median_of_split();
-        for (slot, &x) in z.iter_mut().zip(&self.split) {
-            *slot = (x - median).abs();
-        }
+        let n = self.sorted.len();
+        let median = if n % 2 == 1 {
+            self.sorted[n / 2]
+        } else {
+            0.5 * (self.sorted[n / 2 - 1] + self.sorted[n / 2])
+        };
+        let mut abs_dev = std::mem::take(&mut self.transformed);
+        abs_dev.clear();
+        abs_dev.extend(self.split.iter().map(|x| (x - median).abs()));
         let mut folded = std::mem::take(&mut self.folded);
-        self.z_scale_into(&z, &mut folded);
+        self.z_scale_into(&abs_dev, &mut folded);
         let tail = rhat_basic(&folded, n_chain, half);
         self.folded = folded;
-        self.transformed = z;
+        self.transformed = abs_dev;
         if bulk.is_nan() || tail.is_nan() {
             f64::NAN
         } else {
@@ -624,24 +658,25 @@ impl DiagnosticsWorkspace {
     }
 
     fn ess_bulk_loaded(&mut self, n_steps: usize, n_walkers: usize) -> f64 {
-        let half = n_steps / 2;
-        let mut z = std::mem::take(&mut self.transformed);
-        let split = std::mem::take(&mut self.split);
-        self.z_scale_into(&split, &mut z);
-        self.split = split;
-        let ess = ess_basic(&mut self.autocorr, &z, 2 * n_walkers, half);
-        self.transformed = z;
-        ess
+        self.ensure_bulk();
+        ess_basic(&mut self.autocorr, &self.bulk_z, 2 * n_walkers, n_steps / 2)
     }
 
     fn ess_tail_loaded(&mut self, n_steps: usize, n_walkers: usize) -> f64 {
         let half = n_steps / 2;
-        self.sorted.clear();
-        self.sorted.extend_from_slice(&self.chains);
-        self.sorted.sort_unstable_by(f64::total_cmp);
+        // Quantiles of all draws; for an even chain length the split halves
+        // are all the draws.
+        let quantiles = if n_steps % 2 == 0 {
+            self.ensure_bulk();
+            [0.05, 0.95].map(|p| quantile_type7_sorted(&self.sorted, p))
+        } else {
+            self.sorted_all.clear();
+            self.sorted_all.extend_from_slice(&self.chains);
+            self.sorted_all.sort_unstable_by(f64::total_cmp);
+            [0.05, 0.95].map(|p| quantile_type7_sorted(&self.sorted_all, p))
+        };
         let mut worst = f64::INFINITY;
-        for prob in [0.05, 0.95] {
-            let q = quantile_type7_sorted(&self.sorted, prob);
+        for q in quantiles {
             let mut ind = std::mem::take(&mut self.transformed);
             ind.clear();
             for chain in self.chains.chunks_exact(n_steps) {
@@ -659,40 +694,43 @@ impl DiagnosticsWorkspace {
         worst
     }
 
-    fn median_of_split(&mut self) -> f64 {
-        self.sorted.clear();
-        self.sorted.extend_from_slice(&self.split);
-        self.sorted.sort_unstable_by(f64::total_cmp);
-        let n = self.sorted.len();
-        if n % 2 == 1 {
-            self.sorted[n / 2]
-        } else {
-            0.5 * (self.sorted[n / 2 - 1] + self.sorted[n / 2])
-        }
-    }
-
     /// Rank-normalisation: average ranks over all draws (ties share the
     /// mean rank), Blom's offset `(r - 3/8) / (S + 1/4)`, then the normal
     /// quantile (Vehtari et al. 2021, eq. 14; Blom 1958).
     fn z_scale_into(&mut self, values: &[f64], out: &mut Vec<f64>) {
         let n = values.len();
         self.order.clear();
-        self.order.extend(0..n);
-        self.order
-            .sort_unstable_by(|&a, &b| values[a].total_cmp(&values[b]));
+        self.order.extend(values.iter().copied().zip(0..n));
+        self.order.sort_unstable_by(|a, b| a.0.total_cmp(&b.0));
         out.clear();
         out.resize(n, 0.0);
+        if self.z_cache_n != n {
+            self.z_cache.clear();
+            self.z_cache.resize(2 * n + 2, f64::NAN);
+            self.z_cache_n = n;
+        }
         let denom = n as f64 + 0.25;
         let mut start = 0;
         while start < n {
             let mut end = start + 1;
-            while end < n && values[self.order[end]] == values[self.order[start]] {
+            while end < n && self.order[end].0 == self.order[start].0 {
                 end += 1;
             }
-            // Ranks start..end-1 (0-based) tie: mean 1-based rank.
-            let rank = 0.5 * ((start + 1) as f64 + end as f64);
-            let z = normal_quantile((rank - 0.375) / denom);
-            for &i in &self.order[start..end] {
+            // 0-based positions start..end tie: their mean 1-based rank is
+            // key / 2 with key = start + 1 + end.
+            let key = start + 1 + end;
+            let mut z = self.z_cache[key];
+            if z.is_nan() {
+                z = normal_quantile((0.5 * key as f64 - 0.375) / denom);
+                self.z_cache[key] = z;
+                // Blom scores are symmetric: rank r and n + 1 - r give p and
+                // 1 - p (equal to rounding), hence z and -z.
+                let mirror = 2 * (n + 1) - key;
+                if self.z_cache[mirror].is_nan() {
+                    self.z_cache[mirror] = -z;
+                }
+            }
+            for &(_, i) in &self.order[start..end] {
                 out[i] = z;
             }
             start = end;
