@@ -65,7 +65,8 @@ impl Walker {
             if ll > f64::NEG_INFINITY && ll < f64::INFINITY {
                 let ln_ratio = log_factor + tempered(beta, lp, ll)
                     - tempered(beta, self.log_prior, self.log_likelihood);
-                accepted = u.ln() < ln_ratio;
+                // ln u <= 0, so a non-negative ratio always accepts; skip the log.
+                accepted = ln_ratio >= 0.0 || u.ln() < ln_ratio;
             }
         }
         if accepted {
@@ -90,13 +91,16 @@ pub(crate) struct Rung {
 
 impl Rung {
     /// Updates half `part` (0 = first half, 1 = second) against the other half
-    /// (Foreman-Mackey et al. 2013, PASP 125, 306, Algorithm 3).
+    /// (Foreman-Mackey et al. 2013, PASP 125, 306, Algorithm 3). With
+    /// `parallel`, walkers are shared among threads in tasks of at least
+    /// `min_len` walkers (only the scheduling changes, never the result).
     pub fn half_step<D: LogDensity + ?Sized>(
         &mut self,
         part: usize,
         density: &D,
         moves: &MoveMixture,
         parallel: bool,
+        min_len: usize,
     ) {
         let half = self.walkers.len() / 2;
         let beta = self.beta;
@@ -109,6 +113,7 @@ impl Rung {
         if parallel {
             active
                 .par_iter_mut()
+                .with_min_len(min_len)
                 .for_each(|w| w.advance(complement, moves, density, beta));
         } else {
             active
@@ -118,21 +123,57 @@ impl Rung {
     }
 }
 
+/// How walker updates are spread over threads; chosen from measured cost,
+/// it changes the speed only, never the chain.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Schedule {
+    /// All on the calling thread.
+    Serial,
+    /// Rayon tasks of at least this many walkers.
+    Parallel { min_len: usize },
+}
+
+/// Wall time of work worth one rayon task: well above rayon's per-task
+/// overhead (a few microseconds), so cheap densities are not slowed down by threads.
+const TASK_NANOS: f64 = 50_000.0;
+
+impl Schedule {
+    /// Picks the schedule from the measured cost of one walker update.
+    pub fn from_cost(nanos_per_walker: f64, walkers_per_half: usize, n_rungs: usize) -> Self {
+        let min_len = (TASK_NANOS / nanos_per_walker.max(1.0)).ceil() as usize;
+        if min_len >= walkers_per_half * n_rungs {
+            Schedule::Serial
+        } else {
+            Schedule::Parallel {
+                min_len: min_len.clamp(1, walkers_per_half),
+            }
+        }
+    }
+}
+
 /// Advances every temperature by one full step (both halves).
 pub(crate) fn step_all<D: LogDensity + ?Sized>(
     rungs: &mut [Rung],
     density: &D,
     moves: &MoveMixture,
-    parallel: bool,
+    schedule: Schedule,
 ) {
     for part in 0..2 {
-        if parallel && rungs.len() > 1 {
-            rungs
-                .par_iter_mut()
-                .for_each(|r| r.half_step(part, density, moves, true));
-        } else {
-            for r in rungs.iter_mut() {
-                r.half_step(part, density, moves, parallel);
+        match schedule {
+            Schedule::Parallel { min_len } if rungs.len() > 1 => {
+                rungs
+                    .par_iter_mut()
+                    .for_each(|r| r.half_step(part, density, moves, true, min_len));
+            }
+            Schedule::Parallel { min_len } => {
+                for r in rungs.iter_mut() {
+                    r.half_step(part, density, moves, true, min_len);
+                }
+            }
+            Schedule::Serial => {
+                for r in rungs.iter_mut() {
+                    r.half_step(part, density, moves, false, 1);
+                }
             }
         }
     }

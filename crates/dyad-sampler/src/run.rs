@@ -12,7 +12,7 @@ use serde::{Deserialize, Serialize};
 use crate::checkpoint::{read_payload, write_atomic, Decoder, Encoder};
 use crate::density::LogDensity;
 use crate::diagnostics::{ess_bulk, ess_tail, split_rhat, AutocorrEstimator};
-use crate::ensemble::{step_all, Rung, Walker};
+use crate::ensemble::{step_all, Rung, Schedule, Walker};
 use crate::error::SamplerError;
 use crate::history::History;
 use crate::init::{check_initial_ensemble, check_walker_count, place_walkers, Start};
@@ -20,6 +20,9 @@ use crate::moves::{MoveMixture, Scratch};
 use crate::rng::{stream_rng, Stream, StreamRng};
 use crate::storage::{read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink};
 use crate::tempering::{Ladder, TemperedLogLikelihoods, TemperingConfig};
+
+/// Steps between re-timings of the density (to choose the thread schedule).
+const RETIME_STEPS: u64 = 1000;
 
 /// The autocorrelation stopping rule.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -690,6 +693,7 @@ fn drive<D: LogDensity + ?Sized>(
     let (mut acc_prev, mut prop_prev) = state.cold_counts();
     let burn_in_steps = config.tempering.as_ref().map_or(0, |t| t.burn_in_steps);
     let adapt = config.tempering.as_ref().is_some_and(|t| t.adapt);
+    let mut schedule = Schedule::Serial;
 
     let status = loop {
         if state.converged {
@@ -706,7 +710,21 @@ fn drive<D: LogDensity + ?Sized>(
             break RunStatus::Cancelled;
         }
 
-        step_all(&mut state.rungs, density, &config.moves, config.parallel);
+        // The first step of every (resumed) run is timed on one thread to
+        // choose how to spread walkers over threads; re-timed every
+        // RETIME_STEPS steps in case the density's cost changes.
+        let timing = config.parallel && (state.step - start_step) % RETIME_STEPS == 0;
+        let t_step = Instant::now();
+        step_all(
+            &mut state.rungs,
+            density,
+            &config.moves,
+            if timing { Schedule::Serial } else { schedule },
+        );
+        if timing {
+            let per_walker = t_step.elapsed().as_nanos() as f64 / (n_temps * nw) as f64;
+            schedule = Schedule::from_cost(per_walker, nw / 2, n_temps);
+        }
         if n_temps > 1 {
             state.ladder.swap(&mut state.rungs, &mut state.swap_rng);
             if !state.ladder.frozen && adapt {
