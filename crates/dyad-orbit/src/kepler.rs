@@ -52,7 +52,7 @@ const ROUND_MAGIC: f64 = 6_755_399_441_055_744.0;
 /// Reduces any real angle to [-pi, pi] by subtracting the nearest multiple of
 /// 2 pi, with a three-part 2 pi (Cody & Waite 1980, Software Manual for the
 /// Elementary Functions) so no precision is lost for |M| up to ~6e6 rad.
-#[inline]
+#[inline(always)]
 pub fn reduce_mean_anomaly(m: f64) -> f64 {
     let k = (m * (0.5 / PI) + ROUND_MAGIC) - ROUND_MAGIC;
     ((m - k * TWO_PI_1) - k * TWO_PI_2) - k * TWO_PI_3
@@ -69,8 +69,12 @@ pub fn solve_kepler(mean_anomaly: f64, e: f64) -> EccentricAnomaly {
     solve_reduced(reduce_mean_anomaly(mean_anomaly), e)
 }
 
-/// Number of intervals of equal width in E over [0, pi] in [`KeplerSolver`].
+/// Number of intervals of equal width in E over [0, pi] in [`KeplerSolver`]
+/// (a power of two: indices are masked with INTERVALS - 1).
 const INTERVALS: usize = 16;
+/// Number of mean anomalies [`KeplerSolver::solve_many`] and
+/// [`crate::Orbit::states_into`] process together.
+pub const LANES: usize = 8;
 /// Width of one interval in E.
 const STEP: f64 = PI / INTERVALS as f64;
 
@@ -108,10 +112,159 @@ fn mid_nodes() -> &'static MidNodes {
     })
 }
 
-/// The corner where E(M) behaves like a cube root and the interval
-/// polynomials are not accurate enough: for e above `CORNER_E[j]` the first
-/// j + 1 intervals (E < (j + 1) pi/16) use the cubic starter instead.
-const CORNER_E: [f64; 4] = [0.8, 0.95, 0.96, 0.985];
+/// The corner where E(M) behaves like a cube root and the uniform intervals
+/// are not accurate enough: for e above `CORNER_E` the first
+/// `CORNER_INTERVALS` intervals (E < pi/4) use a second, geometric table.
+const CORNER_E: f64 = 0.8;
+const CORNER_INTERVALS: usize = 4;
+/// Most intervals of the geometric corner table.
+const CORNER_MAX: usize = 42;
+/// Ratio of consecutive ends of the geometric corner table.
+const CORNER_RATIO: f64 = 0.7;
+
+/// E, sin E, E - sin E and 1 - cos E, the last two free of cancellation.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+struct SmallAngle {
+    e: f64,
+    sin: f64,
+    e_minus_sin: f64,
+    one_minus_cos: f64,
+}
+
+impl SmallAngle {
+    /// For 0 <= x <= pi/4 (Taylor series, see `corner_sin_cos_deviations`).
+    fn new(x: f64) -> Self {
+        let (sin_m_x, cos_m_1) = corner_sin_cos_deviations(x);
+        Self {
+            e: x,
+            sin: x + sin_m_x,
+            e_minus_sin: -sin_m_x,
+            one_minus_cos: -cos_m_1,
+        }
+    }
+}
+
+/// Ends E_j = (pi/4) 0.7^j of the geometric corner table and the middles
+/// of consecutive ends, shared by all solvers.
+#[derive(Debug, PartialEq)]
+struct CornerNodes {
+    ends: [SmallAngle; CORNER_MAX],
+    mids: [SmallAngle; CORNER_MAX],
+}
+
+fn corner_nodes() -> &'static CornerNodes {
+    static NODES: OnceLock<CornerNodes> = OnceLock::new();
+    NODES.get_or_init(|| {
+        let mut ends = [SmallAngle::default(); CORNER_MAX];
+        let mut mids = [SmallAngle::default(); CORNER_MAX];
+        let mut x = PI / 4.0;
+        for j in 0..CORNER_MAX {
+            ends[j] = SmallAngle::new(x);
+            mids[j] = SmallAngle::new(0.5 * (x + CORNER_RATIO * x));
+            x *= CORNER_RATIO;
+        }
+        CornerNodes { ends, mids }
+    })
+}
+
+/// Quintic Hermite interpolation of E(M) on one interval of width `dm` in M
+/// and `span` in E, from dE/dM (`d1`) and d2E/dM2 (`d2`) at both ends.
+/// Returns the coefficients c of E - E_start = t (c0 + t (c1 + ... + t c4)).
+/// With s = t/dm, the s^3, s^4, s^5 coefficients (A, B, C) solve
+/// A + B + C = Y, 3A + 4B + 5C = D, 6A + 12B + 20C = G (matching value,
+/// slope and curvature at the far end).
+fn hermite_quintic(dm: f64, span: f64, d1: (f64, f64), d2: (f64, f64)) -> [f64; 5] {
+    let inv = 1.0 / dm;
+    let y = span - d1.0 * dm - 0.5 * d2.0 * dm * dm;
+    let d = (d1.1 - d1.0 - d2.0 * dm) * dm;
+    let g = (d2.1 - d2.0) * dm * dm;
+    let a3 = 10.0 * y - 4.0 * d + 0.5 * g;
+    let a4 = -15.0 * y + 7.0 * d - g;
+    let a5 = 6.0 * y - 3.0 * d + 0.5 * g;
+    let inv3 = inv * inv * inv;
+    [
+        d1.0,
+        0.5 * d2.0,
+        a3 * inv3,
+        a4 * inv3 * inv,
+        a5 * inv3 * inv * inv,
+    ]
+}
+
+/// The geometric corner table of one solver (used when e > 0.8).
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct CornerTable {
+    /// Number of intervals in use.
+    len: usize,
+    /// M at the ends, ascending from M = 0; +inf past `len`.
+    m_ends: [f64; CORNER_MAX + 1],
+    /// Hermite coefficients per interval (offset from the interval start).
+    coef: [[f64; 5]; CORNER_MAX],
+    /// Middle of each interval and its half width.
+    mid: [SmallAngle; CORNER_MAX],
+    half: [f64; CORNER_MAX],
+}
+
+impl CornerTable {
+    fn new(e: f64) -> Self {
+        let nodes = corner_nodes();
+        let one_minus_e = 1.0 - e;
+        // Below E_lin = 0.3 sqrt(6(1-e)/e) Kepler's equation is nearly
+        // linear, (1-e) E dominates e E^3/6, and one interval [0, E_lin]
+        // is smooth enough; above it the ends are geometric.
+        let e_lin = 0.3 * (6.0 * one_minus_e / e).sqrt();
+        let geometric = nodes
+            .ends
+            .iter()
+            .take_while(|n| n.e >= e_lin)
+            .count()
+            .max(1);
+        let len = geometric.min(CORNER_MAX);
+        // Ascending ends: 0, E_{len-1}, ..., E_0 = pi/4.
+        let mut ends = [SmallAngle::default(); CORNER_MAX + 1];
+        for i in 0..len {
+            ends[i + 1] = nodes.ends[len - 1 - i];
+        }
+        let mut m_ends = [f64::INFINITY; CORNER_MAX + 1];
+        let mut d1 = [0.0; CORNER_MAX + 1];
+        let mut d2 = [0.0; CORNER_MAX + 1];
+        for i in 0..=len {
+            let a = ends[i];
+            // M = (1-e) E + e (E - sin E), dE/dM = 1/((1-e) + e (1 - cos E)).
+            m_ends[i] = one_minus_e * a.e + e * a.e_minus_sin;
+            let slope = 1.0 / (one_minus_e + e * a.one_minus_cos);
+            d1[i] = slope;
+            d2[i] = -e * a.sin * slope * slope * slope;
+        }
+        let mut coef = [[0.0; 5]; CORNER_MAX];
+        let mut mid = [SmallAngle::default(); CORNER_MAX];
+        let mut half = [0.0; CORNER_MAX];
+        for i in 0..len {
+            let span = ends[i + 1].e - ends[i].e;
+            coef[i] = hermite_quintic(
+                m_ends[i + 1] - m_ends[i],
+                span,
+                (d1[i], d1[i + 1]),
+                (d2[i], d2[i + 1]),
+            );
+            half[i] = 0.5 * span;
+            // The first interval [0, E_len-1] has its own middle; the others
+            // are the shared geometric middles.
+            mid[i] = if i == 0 {
+                SmallAngle::new(0.5 * ends[1].e)
+            } else {
+                nodes.mids[len - 1 - i]
+            };
+        }
+        Self {
+            len,
+            m_ends,
+            coef,
+            mid,
+            half,
+        }
+    }
+}
 
 /// A fast Kepler solver for one eccentricity (checked at construction), for
 /// evaluating many mean anomalies of the same orbit.
@@ -132,11 +285,13 @@ const CORNER_E: [f64; 4] = [0.8, 0.95, 0.96, 0.985];
 ///   <= pi/32), and applies one step of Householder's fourth-order method
 ///   (A. S. Householder, The Numerical Treatment of a Single Nonlinear
 ///   Equation, 1970), whose rational form needs one division.
-/// - The corner e > 0.8, E small, where E(M) behaves like a cube root
-///   (see `CORNER_E`): the start is the root of (1 - e) E + e E^3/6 = M
-///   (Kepler's equation with sin E to third order, by Cardano's formula; cf.
-///   F. L. Markley, Celest. Mech. 63, 101, 1995), improved by one Newton
-///   step on the fifth-order equation, then the same correction.
+/// - The corner e > 0.8, E < pi/4, where E(M) turns from linear
+///   (E ~ M/(1-e)) to a cube root (E ~ (6M)^(1/3)) and no polynomial in M
+///   on the uniform intervals is good: a second table with ends in E
+///   falling geometrically by 0.7 from pi/4 down to 0.3 sqrt(6(1-e)/e),
+///   below which one last interval reaches E = 0. Same quintic Hermite
+///   start and correction; E - sin E and 1 - cos E are carried separately
+///   so that nothing cancels as e -> 1 and E -> 0.
 ///
 /// Measured accuracy: |E - e sin E - M| <= 2e-15 rad over dense grids for
 /// 0 <= e <= 1 - 1e-12 (see the crate tests).
@@ -144,14 +299,12 @@ const CORNER_E: [f64; 4] = [0.8, 0.95, 0.96, 0.985];
 pub struct KeplerSolver {
     e: f64,
     one_minus_e: f64,
-    /// Intervals k < corner_intervals use the cubic starter.
+    /// Intervals k < corner_intervals use the corner table.
     corner_intervals: usize,
-    /// Cubic starter constants P = 2(1-e)/e and 3/e (zero when unused).
-    corner_p: f64,
-    three_over_e: f64,
+    corner: CornerTable,
     /// M at the interval ends E_k = k pi/16, k = 0..=16.
     m_ends: [f64; INTERVALS + 1],
-    /// Per interval: E - E_mid = -STEP/2 + t (c1 + t (c2 + ... + t c5)),
+    /// Per interval k: E - E_mid = -STEP/2 + t (c0 + t (c1 + ... + t c4)),
     /// t = M - M_k.
     coef: [[f64; 5]; INTERVALS],
     mid: &'static MidNodes,
@@ -177,34 +330,30 @@ impl KeplerSolver {
         m_ends[INTERVALS] = PI;
         let mut coef = [[0.0; 5]; INTERVALS];
         for k in 0..INTERVALS {
-            // Quintic Hermite interpolation of E(M) on [M_k, M_k+1]: with
-            // s = t/dm, the s^3, s^4, s^5 coefficients (A, B, C) solve
-            // A + B + C = Y, 3A + 4B + 5C = D, 6A + 12B + 20C = G.
-            let dm = m_ends[k + 1] - m_ends[k];
-            let inv = 1.0 / dm;
-            let y = STEP - d1[k] * dm - 0.5 * d2[k] * dm * dm;
-            let d = (d1[k + 1] - d1[k] - d2[k] * dm) * dm;
-            let g = (d2[k + 1] - d2[k]) * dm * dm;
-            let a3 = 10.0 * y - 4.0 * d + 0.5 * g;
-            let a4 = -15.0 * y + 7.0 * d - g;
-            let a5 = 6.0 * y - 3.0 * d + 0.5 * g;
-            let inv3 = inv * inv * inv;
-            coef[k] = [
-                d1[k],
-                0.5 * d2[k],
-                a3 * inv3,
-                a4 * inv3 * inv,
-                a5 * inv3 * inv * inv,
-            ];
+            coef[k] = hermite_quintic(
+                m_ends[k + 1] - m_ends[k],
+                STEP,
+                (d1[k], d1[k + 1]),
+                (d2[k], d2[k + 1]),
+            );
         }
-        let corner_intervals = CORNER_E.iter().filter(|&&limit| e > limit).count();
-        let corner = corner_intervals > 0;
+        let corner_intervals = if e > CORNER_E { CORNER_INTERVALS } else { 0 };
+        let corner = if e > CORNER_E {
+            CornerTable::new(e)
+        } else {
+            CornerTable {
+                len: 0,
+                m_ends: [f64::INFINITY; CORNER_MAX + 1],
+                coef: [[0.0; 5]; CORNER_MAX],
+                mid: [SmallAngle::default(); CORNER_MAX],
+                half: [0.0; CORNER_MAX],
+            }
+        };
         Ok(Self {
             e,
             one_minus_e: 1.0 - e,
             corner_intervals,
-            corner_p: if corner { 2.0 * (1.0 - e) / e } else { 0.0 },
-            three_over_e: if corner { 3.0 / e } else { 0.0 },
+            corner,
             m_ends,
             coef,
             mid,
@@ -256,10 +405,135 @@ impl KeplerSolver {
         }
     }
 
+    /// Solves many mean anomalies (any real values, as in [`Self::solve`]):
+    /// `out[i]` for `mean_anomalies[i]`. Gives the same values as calling
+    /// [`Self::solve`] on each, but works on groups of [`LANES`] at a time
+    /// so the processor can overlap and vectorise them. If the slices differ
+    /// in length only the common prefix is filled. No allocation.
+    pub fn solve_many(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
+        #[cfg(target_arch = "x86_64")]
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor supports AVX2, checked just above.
+            unsafe { self.solve_many_avx2(mean_anomalies, out) };
+            return;
+        }
+        self.solve_many_portable(mean_anomalies, out);
+    }
+
+    /// [`Self::solve_many`] compiled for AVX2 (4 f64 per instruction). The
+    /// arithmetic is the same IEEE operations in the same order (no fused
+    /// multiply-add), so the results are bit-for-bit those of the portable
+    /// path.
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2")]
+    unsafe fn solve_many_avx2(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
+        self.solve_many_portable(mean_anomalies, out);
+    }
+
+    #[inline(always)]
+    fn solve_many_portable(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
+        let n = mean_anomalies.len().min(out.len());
+        let (ms, out) = (&mean_anomalies[..n], &mut out[..n]);
+        let mut ms_chunks = ms.chunks_exact(LANES);
+        let mut out_chunks = out.chunks_exact_mut(LANES);
+        for (mc, oc) in (&mut ms_chunks).zip(&mut out_chunks) {
+            let mut reduced = [0.0; LANES];
+            for (r, &m) in reduced.iter_mut().zip(mc) {
+                *r = reduce_mean_anomaly(m);
+            }
+            let lanes = self.solve_lanes(&reduced);
+            oc.copy_from_slice(&lanes);
+        }
+        for (o, &m) in out_chunks
+            .into_remainder()
+            .iter_mut()
+            .zip(ms_chunks.remainder())
+        {
+            *o = self.solve(m);
+        }
+    }
+
+    /// [`Self::solve_reduced`] for [`LANES`] mean anomalies at once: the same
+    /// arithmetic, written lane by lane so that it compiles to vector
+    /// instructions; a group with a lane in the corner is done by the scalar path.
+    #[inline(always)]
+    pub(crate) fn solve_lanes(&self, mean_anomaly: &[f64; LANES]) -> [EccentricAnomaly; LANES] {
+        let e = self.e;
+        let mut m = [0.0; LANES];
+        let mut sign = [0.0; LANES];
+        for i in 0..LANES {
+            sign[i] = if mean_anomaly[i] < 0.0 { -1.0 } else { 1.0 };
+            m[i] = mean_anomaly[i].abs();
+        }
+        // Interval index per lane, one end at a time across the lanes.
+        let mut kk = [0usize; LANES];
+        for &end in &self.m_ends[1..INTERVALS] {
+            for i in 0..LANES {
+                kk[i] += (m[i] >= end) as usize;
+            }
+        }
+        let corner = kk.iter().any(|&k| k < self.corner_intervals);
+        // Gather the interval data (the mask keeps indices provably in range).
+        let mut t = [0.0; LANES];
+        let mut coef = [[0.0; LANES]; 5];
+        let mut e_mid = [0.0; LANES];
+        let mut sm = [0.0; LANES];
+        let mut cm = [0.0; LANES];
+        for i in 0..LANES {
+            let k = kk[i] & (INTERVALS - 1);
+            t[i] = m[i] - self.m_ends[k];
+            for (j, c) in coef.iter_mut().enumerate() {
+                c[i] = self.coef[k][j];
+            }
+            e_mid[i] = (k as f64 + 0.5) * STEP;
+            sm[i] = self.mid.sin[k];
+            cm[i] = self.mid.cos[k];
+        }
+        let mut out = [EccentricAnomaly {
+            e_anom: 0.0,
+            sin_e: 0.0,
+            cos_e: 1.0,
+        }; LANES];
+        if corner {
+            // Only for e > 0.8 near periastron: the scalar path does it.
+            for (o, &x) in out.iter_mut().zip(mean_anomaly) {
+                *o = self.solve_reduced(x);
+            }
+            return out;
+        }
+        let mut ea = [0.0; LANES];
+        let mut se = [0.0; LANES];
+        let mut ce = [0.0; LANES];
+        for i in 0..LANES {
+            let ti = t[i];
+            let t2 = ti * ti;
+            let d0 = -0.5 * STEP
+                + ti * ((coef[0][i] + ti * coef[1][i])
+                    + t2 * ((coef[2][i] + ti * coef[3][i]) + t2 * coef[4][i]));
+            let (sin_m_x, cos_m_1) = small_sin_cos_deviations(d0);
+            let sin_d = d0 + sin_m_x;
+            let s0 = sm[i] + (sm[i] * cos_m_1 + cm[i] * sin_d);
+            let c0 = cm[i] + (cm[i] * cos_m_1 - sm[i] * sin_d);
+            let f0 = ((e_mid[i] - m[i]) + d0) - e * s0;
+            let sol = correct(e_mid[i] + d0, s0, c0, f0, 1.0 - e * c0, e);
+            ea[i] = sign[i] * sol.e_anom;
+            se[i] = sign[i] * sol.sin_e;
+            ce[i] = sol.cos_e;
+        }
+        for i in 0..LANES {
+            out[i] = EccentricAnomaly {
+                e_anom: ea[i],
+                sin_e: se[i],
+                cos_e: ce[i],
+            };
+        }
+        out
+    }
+
     /// Index of the interval holding m in [0, pi]: the number of interior
     /// ends at or below m, summed as a tree so it needs no branches and no
     /// long chain.
-    #[inline]
+    #[inline(always)]
     fn interval(&self, m: f64) -> usize {
         let me = &self.m_ends;
         let b = |i: usize| (m >= me[i]) as usize;
@@ -268,31 +542,37 @@ impl KeplerSolver {
             + (((b(9) + b(10)) + (b(11) + b(12))) + ((b(13) + b(14)) + b(15)))
     }
 
-    /// Starting value in the e -> 1, E -> 0 corner, with f0 = E0 - e sin E0 - M
-    /// and f1 = 1 - e cos E0.
+    /// Starting value in the e -> 1, E -> 0 corner from the geometric
+    /// table, with f0 = E0 - e sin E0 - M and f1 = 1 - e cos E0 written so
+    /// that nothing cancels when e -> 1 and E0 -> 0.
     #[inline(never)]
     fn corner_start(&self, m: f64) -> (f64, f64, f64, f64, f64) {
         let e = self.e;
-        // Root of E^3 + 3 P E - 2 Q = 0 with P = 2(1-e)/e, Q = 3M/e
-        // (Cardano), in the form 2 Q w^2 / (w^4 + P w^2 + P^2) with
-        // w = cbrt(Q + sqrt(Q^2 + P^3)), free of cancellation.
-        let p = self.corner_p;
-        let q = m * self.three_over_e;
-        let w = cbrt_positive(q + (q * q + p * p * p).sqrt());
-        let w2 = w * w;
-        let ec = 2.0 * q * w2 / (w2 * w2 + p * w2 + p * p);
-        // One Newton step on (1-e) E + e (E^3/6 - E^5/120) = M adds the
-        // fifth-order term of sin E (remaining error ~E^5/2500).
-        let z = ec * ec;
-        let e0 = ec
-            + e * z * z * ec * (1.0 / 120.0)
-                / (self.one_minus_e + e * z * (0.5 - z * (1.0 / 24.0)));
-        let (sin_m_x, cos_m_1) = corner_sin_cos_deviations(e0);
-        // f0 = (1-e) E0 + e (E0 - sin E0) - M and f1 = (1-e) - e (cos E0 - 1),
-        // written so that nothing cancels when e -> 1 and E0 -> 0.
-        let f0 = self.one_minus_e * e0 - e * sin_m_x - m;
-        let f1 = self.one_minus_e - e * cos_m_1;
-        (e0, e0 + sin_m_x, 1.0 + cos_m_1, f0, f1)
+        let table = &self.corner;
+        let mut i = 0;
+        for &mi in &table.m_ends[1..] {
+            i += (m >= mi) as usize;
+        }
+        let i = i.min(table.len - 1);
+        let c = &table.coef[i];
+        let t = m - table.m_ends[i];
+        let t2 = t * t;
+        let d0 = -table.half[i] + t * ((c[0] + t * c[1]) + t2 * ((c[2] + t * c[3]) + t2 * c[4]));
+        let mid = &table.mid[i];
+        let (sin_m_x, cos_m_1) = small_sin_cos_deviations(d0);
+        let sin_d = d0 + sin_m_x;
+        let (sm, omc) = (mid.sin, mid.one_minus_cos);
+        let cm = 1.0 - omc;
+        let e0 = mid.e + d0;
+        let s0 = sm + (sm * cos_m_1 + cm * sin_d);
+        // E0 - sin E0 = (Em - sin Em) + d0 - (sm (cos d - 1) + cm sin d)
+        //             = (Em - sin Em) + d0 (1 - cm) - cm (sin d - d) - sm (cos d - 1).
+        let e_minus_sin = mid.e_minus_sin + (d0 * omc - cm * sin_m_x - sm * cos_m_1);
+        // 1 - cos E0 = (1 - cm) - (cm (cos d - 1) - sm sin d).
+        let one_minus_cos = omc - (cm * cos_m_1 - sm * sin_d);
+        let f0 = (self.one_minus_e * e0 + e * e_minus_sin) - m;
+        let f1 = self.one_minus_e + e * one_minus_cos;
+        (e0, s0, 1.0 - one_minus_cos, f0, f1)
     }
 }
 
@@ -302,7 +582,7 @@ impl KeplerSolver {
 /// (Householder 1970; error ~ (f2 d / f1)^3 d). Then sin and cos of e0 + d
 /// by the addition theorem (|d| < 2e-4: sin d = d - d^3/6, cos d - 1 = -d^2/2
 /// to better than 1e-17).
-#[inline]
+#[inline(always)]
 fn correct(e0: f64, s0: f64, c0: f64, f0: f64, f1: f64, e: f64) -> EccentricAnomaly {
     let f2 = e * s0;
     let f3 = e * c0;
@@ -319,9 +599,9 @@ fn correct(e0: f64, s0: f64, c0: f64, f0: f64, f1: f64, e: f64) -> EccentricAnom
     }
 }
 
-/// (sin x - x, cos x - 1) by Taylor series, for |x| <= 0.1 (truncation
-/// below 3e-19 there), in Estrin's scheme.
-#[inline]
+/// (sin x - x, cos x - 1) by Taylor series, for |x| <= 0.12 (truncation
+/// below 2e-18 there), in Estrin's scheme.
+#[inline(always)]
 fn small_sin_cos_deviations(x: f64) -> (f64, f64) {
     let z = x * x;
     let z2 = z * z;
@@ -333,8 +613,8 @@ fn small_sin_cos_deviations(x: f64) -> (f64, f64) {
     (sin_m_x, cos_m_1)
 }
 
-/// (sin x - x, cos x - 1) by Taylor series, for |x| <= 0.6 (truncation
-/// below 3e-19 there).
+/// (sin x - x, cos x - 1) by Taylor series, for |x| <= pi/4 (truncation
+/// below 3e-18 there).
 #[inline]
 fn corner_sin_cos_deviations(x: f64) -> (f64, f64) {
     // 1/n! for n = 0..=17.

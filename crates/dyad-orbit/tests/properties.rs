@@ -230,6 +230,18 @@ proptest! {
         prop_assert!(orbit.rv_shape(t) > 0.0);
     }
 
+    // The batch solver equals one-by-one solving, bit for bit, corner included.
+    #[test]
+    fn solve_many_equals_solve(e in 0.0f64..0.999_999, ms in proptest::collection::vec(-10.0f64..10.0, 0..40), tiny in proptest::collection::vec(-0.05f64..0.05, 0..12)) {
+        let solver = KeplerSolver::new(e).unwrap();
+        let all: Vec<f64> = ms.iter().chain(&tiny).copied().collect();
+        let mut out = vec![solve_kepler(0.0, 0.0); all.len()];
+        solver.solve_many(&all, &mut out);
+        for (o, &m) in out.iter().zip(&all) {
+            prop_assert_eq!(*o, solver.solve(m));
+        }
+    }
+
     // The batch equals one-by-one evaluation.
     #[test]
     fn batch_equals_single(el in elements(), times in proptest::collection::vec(2_440_000.0f64..2_470_000.0, 0..50)) {
