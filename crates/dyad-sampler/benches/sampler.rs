@@ -37,7 +37,13 @@ fn fixed_run<D: LogDensity>(density: &D, n_walkers: usize, steps: u64, parallel:
         centre: vec![0.0; dim],
         scale: vec![1.0; dim],
     };
-    let r = run(density, &config, &start, &mut Discard, RunControl::default());
+    let r = run(
+        density,
+        &config,
+        &start,
+        &mut Discard,
+        RunControl::default(),
+    );
     black_box(r.map(|r| r.steps).unwrap_or(0));
 }
 
@@ -118,7 +124,9 @@ fn tau_update(c: &mut Criterion) {
         b.iter(|| {
             let mut worst: f64 = 0.0;
             for col in &columns {
-                let t = estimator.estimate(col, n_steps, nw).map_or(f64::NAN, |a| a.tau);
+                let t = estimator
+                    .estimate(col, n_steps, nw)
+                    .map_or(f64::NAN, |a| a.tau);
                 worst = worst.max(t);
             }
             black_box(worst)

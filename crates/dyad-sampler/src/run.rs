@@ -248,9 +248,9 @@ pub struct RunDiagnostics {
     pub tau: Vec<f64>,
     /// Rank-normalised split R-hat per parameter (walkers as chains).
     pub split_rhat: Vec<f64>,
-    /// Bulk effective sample size per parameter, scaled to unthinned steps
-    /// of the kept history (an ESS of the thinned history, which is what the
-    /// Monte-Carlo error of estimates from the history needs).
+    /// Bulk effective sample size per parameter, of the kept (progressively
+    /// thinned) history after burn-in: a slight underestimate of the ESS of
+    /// the full chain when the history is thinned.
     pub ess_bulk: Vec<f64>,
     /// Tail effective sample size per parameter.
     pub ess_tail: Vec<f64>,

@@ -82,15 +82,13 @@ impl TemperingConfig {
         Ok(())
     }
 
-    /// The initial ladder: geometric in temperature between 1 and the maximum;
-    /// with an infinite maximum the finite rungs are spaced geometrically up to
-    /// T = 10^(n-2)... the hottest is beta = 0.
+    /// The initial ladder, descending in beta: geometric in temperature from 1
+    /// to `max_temperature`; with an infinite maximum the finite rungs grow by
+    /// a factor sqrt(10) in temperature each (T_k = 10^(k/2), a common default)
+    /// and the hottest rung is beta = 0. Adaptation then moves the inner rungs.
     pub fn initial_betas(&self) -> Vec<f64> {
         let n = self.n_temperatures;
         if self.max_temperature.is_infinite() {
-            // Finite rungs geometric with ratio sqrt(2)-ish growth is too slow for
-            // wide posteriors; use a ratio of 10^(1/2) per rung, a common default
-            // when the hottest rung is the prior.
             let mut b: Vec<f64> = (0..n - 1).map(|k| 10f64.powf(-0.5 * k as f64)).collect();
             b.push(0.0);
             b
