@@ -713,7 +713,7 @@ fn drive<D: LogDensity + ?Sized>(
         // The first step of every (resumed) run is timed on one thread to
         // choose how to spread walkers over threads; re-timed every
         // RETIME_STEPS steps in case the density's cost changes.
-        let timing = config.parallel && (state.step - start_step) % RETIME_STEPS == 0;
+        let timing = config.parallel && (state.step - start_step).is_multiple_of(RETIME_STEPS);
         let t_step = Instant::now();
         step_all(
             &mut state.rungs,
