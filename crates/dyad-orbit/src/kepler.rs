@@ -78,12 +78,11 @@ pub const LANES: usize = 8;
 /// Width of one interval in E.
 const STEP: f64 = PI / INTERVALS as f64;
 
-/// sin and cos of E at the middle and at the ends of each interval, shared
-/// by all solvers (computed once with the platform libm).
+/// The middles (E, sin, cos, E - sin E, 1 - cos E) and the ends (sin, cos)
+/// of the uniform intervals, shared by all solvers (computed once).
 #[derive(Debug, PartialEq)]
 struct MidNodes {
-    sin: [f64; INTERVALS],
-    cos: [f64; INTERVALS],
+    mids: [SmallAngle; INTERVALS],
     end_cos: [f64; INTERVALS + 1],
     end_sin: [f64; INTERVALS + 1],
 }
@@ -91,12 +90,11 @@ struct MidNodes {
 fn mid_nodes() -> &'static MidNodes {
     static NODES: OnceLock<MidNodes> = OnceLock::new();
     NODES.get_or_init(|| {
-        let mut sin = [0.0; INTERVALS];
-        let mut cos = [0.0; INTERVALS];
+        let mut mids = [SmallAngle::default(); INTERVALS];
         let mut end_sin = [0.0; INTERVALS + 1];
         let mut end_cos = [0.0; INTERVALS + 1];
-        for k in 0..INTERVALS {
-            (sin[k], cos[k]) = ((k as f64 + 0.5) * STEP).sin_cos();
+        for (k, mid) in mids.iter_mut().enumerate() {
+            *mid = SmallAngle::new((k as f64 + 0.5) * STEP);
         }
         for k in 0..=INTERVALS {
             (end_sin[k], end_cos[k]) = (k as f64 * STEP).sin_cos();
@@ -104,8 +102,7 @@ fn mid_nodes() -> &'static MidNodes {
         // Exact values at E = pi (libm gives sin(pi_f64) = 1.2e-16).
         (end_sin[INTERVALS], end_cos[INTERVALS]) = (0.0, -1.0);
         MidNodes {
-            sin,
-            cos,
+            mids,
             end_sin,
             end_cos,
         }
@@ -122,24 +119,40 @@ const CORNER_MAX: usize = 42;
 /// Ratio of consecutive ends of the geometric corner table.
 const CORNER_RATIO: f64 = 0.7;
 
-/// E, sin E, E - sin E and 1 - cos E, the last two free of cancellation.
+/// E, sin E, cos E, E - sin E and 1 - cos E, the last two free of
+/// cancellation for small E.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 struct SmallAngle {
     e: f64,
     sin: f64,
+    cos: f64,
     e_minus_sin: f64,
     one_minus_cos: f64,
 }
 
 impl SmallAngle {
-    /// For 0 <= x <= pi/4 (Taylor series, see `corner_sin_cos_deviations`).
+    /// For 0 <= x <= pi: Taylor series up to pi/4 (see
+    /// `corner_sin_cos_deviations`), the platform libm above.
     fn new(x: f64) -> Self {
-        let (sin_m_x, cos_m_1) = corner_sin_cos_deviations(x);
-        Self {
-            e: x,
-            sin: x + sin_m_x,
-            e_minus_sin: -sin_m_x,
-            one_minus_cos: -cos_m_1,
+        if x <= PI / 4.0 {
+            let (sin_m_x, cos_m_1) = corner_sin_cos_deviations(x);
+            Self {
+                e: x,
+                sin: x + sin_m_x,
+                cos: 1.0 + cos_m_1,
+                e_minus_sin: -sin_m_x,
+                one_minus_cos: -cos_m_1,
+            }
+        } else {
+            let (sin, cos) = x.sin_cos();
+            let half_sin = (0.5 * x).sin();
+            Self {
+                e: x,
+                sin,
+                cos,
+                e_minus_sin: x - sin,
+                one_minus_cos: 2.0 * half_sin * half_sin,
+            }
         }
     }
 }
@@ -206,6 +219,16 @@ struct CornerTable {
 }
 
 impl CornerTable {
+    /// Index of the interval holding m (branch-free count of the ends).
+    #[inline(always)]
+    fn interval(&self, m: f64) -> usize {
+        let mut i = 0;
+        for &end in &self.m_ends[1..] {
+            i += (m >= end) as usize;
+        }
+        i.min(self.len.saturating_sub(1))
+    }
+
     fn new(e: f64) -> Self {
         let nodes = corner_nodes();
         let one_minus_e = 1.0 - e;
@@ -375,34 +398,7 @@ impl KeplerSolver {
     /// slightly outside, by rounding, are fine).
     #[inline]
     pub fn solve_reduced(&self, mean_anomaly: f64) -> EccentricAnomaly {
-        // E(-M) = -E(M): solve for |M| in [0, pi], restore the sign at the end.
-        let sign = if mean_anomaly < 0.0 { -1.0 } else { 1.0 };
-        let m = mean_anomaly.abs();
-        let e = self.e;
-        let k = self.interval(m);
-        let (e0, s0, c0, f0, f1) = if k < self.corner_intervals {
-            self.corner_start(m)
-        } else {
-            let c = &self.coef[k];
-            let t = m - self.m_ends[k];
-            // Estrin's scheme: shorter dependency chain than Horner's.
-            let t2 = t * t;
-            let d0 = -0.5 * STEP + t * ((c[0] + t * c[1]) + t2 * ((c[2] + t * c[3]) + t2 * c[4]));
-            let e_mid = (k as f64 + 0.5) * STEP;
-            let (sin_m_x, cos_m_1) = small_sin_cos_deviations(d0);
-            let (sm, cm) = (self.mid.sin[k], self.mid.cos[k]);
-            let sin_d = d0 + sin_m_x;
-            let s0 = sm + (sm * cos_m_1 + cm * sin_d);
-            let c0 = cm + (cm * cos_m_1 - sm * sin_d);
-            let f0 = ((e_mid - m) + d0) - e * s0;
-            (e_mid + d0, s0, c0, f0, 1.0 - e * c0)
-        };
-        let sol = correct(e0, s0, c0, f0, f1, e);
-        EccentricAnomaly {
-            e_anom: sign * sol.e_anom,
-            sin_e: sign * sol.sin_e,
-            cos_e: sol.cos_e,
-        }
+        self.solve_group(&[mean_anomaly])[0]
     }
 
     /// Solves many mean anomalies (any real values, as in [`Self::solve`]):
@@ -453,74 +449,96 @@ impl KeplerSolver {
         }
     }
 
-    /// [`Self::solve_reduced`] for [`LANES`] mean anomalies at once: the same
-    /// arithmetic, written lane by lane so that it compiles to vector
-    /// instructions; a group with a lane in the corner is done by the scalar path.
+    /// [`Self::solve_reduced`] for [`LANES`] mean anomalies at once.
     #[inline(always)]
     pub(crate) fn solve_lanes(&self, mean_anomaly: &[f64; LANES]) -> [EccentricAnomaly; LANES] {
+        self.solve_group(mean_anomaly)
+    }
+
+    /// The solver proper, for L mean anomalies in [-pi, pi] at once, written
+    /// lane by lane so that it compiles to vector instructions; the scalar
+    /// and batch interfaces both run this code, so they agree bit for bit.
+    #[inline(always)]
+    fn solve_group<const L: usize>(&self, mean_anomaly: &[f64; L]) -> [EccentricAnomaly; L] {
         let e = self.e;
-        let mut m = [0.0; LANES];
-        let mut sign = [0.0; LANES];
-        for i in 0..LANES {
+        let one_minus_e = self.one_minus_e;
+        // E(-M) = -E(M): solve for |M| in [0, pi], restore the sign at the end.
+        let mut m = [0.0; L];
+        let mut sign = [0.0; L];
+        for i in 0..L {
             sign[i] = if mean_anomaly[i] < 0.0 { -1.0 } else { 1.0 };
             m[i] = mean_anomaly[i].abs();
         }
-        // Interval index per lane, one end at a time across the lanes.
-        let mut kk = [0usize; LANES];
+        // Interval per lane: count the interior ends at or below m, one end
+        // at a time across the lanes (no branches).
+        let mut kk = [0usize; L];
         for &end in &self.m_ends[1..INTERVALS] {
-            for i in 0..LANES {
+            for i in 0..L {
                 kk[i] += (m[i] >= end) as usize;
             }
         }
-        let corner = kk.iter().any(|&k| k < self.corner_intervals);
-        // Gather the interval data (the mask keeps indices provably in range).
-        let mut t = [0.0; LANES];
-        let mut coef = [[0.0; LANES]; 5];
-        let mut e_mid = [0.0; LANES];
-        let mut sm = [0.0; LANES];
-        let mut cm = [0.0; LANES];
-        for i in 0..LANES {
+        // Gather each lane's interval: start in M, polynomial, half width and
+        // the middle's angle data (from the corner table near periastron at
+        // high e). The mask keeps indices provably in range.
+        let mut t = [0.0; L];
+        let mut coef = [[0.0; L]; 5];
+        let mut half = [0.0; L];
+        let (mut em, mut sm, mut cm, mut ems, mut omc) =
+            ([0.0; L], [0.0; L], [0.0; L], [0.0; L], [0.0; L]);
+        for i in 0..L {
             let k = kk[i] & (INTERVALS - 1);
-            t[i] = m[i] - self.m_ends[k];
-            for (j, c) in coef.iter_mut().enumerate() {
-                c[i] = self.coef[k][j];
+            let (start, c, h, mid) = if k < self.corner_intervals {
+                let j = self.corner.interval(m[i]);
+                (
+                    self.corner.m_ends[j],
+                    &self.corner.coef[j],
+                    self.corner.half[j],
+                    &self.corner.mid[j],
+                )
+            } else {
+                (self.m_ends[k], &self.coef[k], 0.5 * STEP, &self.mid.mids[k])
+            };
+            t[i] = m[i] - start;
+            for (row, &value) in coef.iter_mut().zip(c) {
+                row[i] = value;
             }
-            e_mid[i] = (k as f64 + 0.5) * STEP;
-            sm[i] = self.mid.sin[k];
-            cm[i] = self.mid.cos[k];
+            half[i] = h;
+            (em[i], sm[i], cm[i], ems[i], omc[i]) =
+                (mid.e, mid.sin, mid.cos, mid.e_minus_sin, mid.one_minus_cos);
         }
         let mut out = [EccentricAnomaly {
             e_anom: 0.0,
             sin_e: 0.0,
             cos_e: 1.0,
-        }; LANES];
-        if corner {
-            // Only for e > 0.8 near periastron: the scalar path does it.
-            for (o, &x) in out.iter_mut().zip(mean_anomaly) {
-                *o = self.solve_reduced(x);
-            }
-            return out;
-        }
-        let mut ea = [0.0; LANES];
-        let mut se = [0.0; LANES];
-        let mut ce = [0.0; LANES];
-        for i in 0..LANES {
+        }; L];
+        let (mut ea, mut se, mut ce) = ([0.0; L], [0.0; L], [0.0; L]);
+        for i in 0..L {
+            // Start: offset d0 from the middle, by Estrin's scheme.
             let ti = t[i];
             let t2 = ti * ti;
-            let d0 = -0.5 * STEP
+            let d0 = -half[i]
                 + ti * ((coef[0][i] + ti * coef[1][i])
                     + t2 * ((coef[2][i] + ti * coef[3][i]) + t2 * coef[4][i]));
+            let e0 = em[i] + d0;
+            // sin and cos of the start by the addition theorem.
             let (sin_m_x, cos_m_1) = small_sin_cos_deviations(d0);
             let sin_d = d0 + sin_m_x;
             let s0 = sm[i] + (sm[i] * cos_m_1 + cm[i] * sin_d);
-            let c0 = cm[i] + (cm[i] * cos_m_1 - sm[i] * sin_d);
-            let f0 = ((e_mid[i] - m[i]) + d0) - e * s0;
-            let sol = correct(e_mid[i] + d0, s0, c0, f0, 1.0 - e * c0, e);
+            // E0 - sin E0 = (Em - sin Em) + d0 (1 - cos Em) - cos Em (sin d - d)
+            //   - sin Em (cos d - 1), and 1 - cos E0 = (1 - cos Em)
+            //   - (cos Em (cos d - 1) - sin Em sin d): no cancellation as E -> 0.
+            let e_minus_sin = ems[i] + (d0 * omc[i] - cm[i] * sin_m_x - sm[i] * cos_m_1);
+            let one_minus_cos = omc[i] - (cm[i] * cos_m_1 - sm[i] * sin_d);
+            // f0 = E0 - e sin E0 - M and f1 = 1 - e cos E0, in forms that
+            // stay accurate when e -> 1 and E0 -> 0.
+            let f0 = (one_minus_e * e0 + e * e_minus_sin) - m[i];
+            let f1 = one_minus_e + e * one_minus_cos;
+            let sol = correct(e0, s0, 1.0 - one_minus_cos, f0, f1, e);
             ea[i] = sign[i] * sol.e_anom;
             se[i] = sign[i] * sol.sin_e;
             ce[i] = sol.cos_e;
         }
-        for i in 0..LANES {
+        for i in 0..L {
             out[i] = EccentricAnomaly {
                 e_anom: ea[i],
                 sin_e: se[i],
@@ -528,51 +546,6 @@ impl KeplerSolver {
             };
         }
         out
-    }
-
-    /// Index of the interval holding m in [0, pi]: the number of interior
-    /// ends at or below m, summed as a tree so it needs no branches and no
-    /// long chain.
-    #[inline(always)]
-    fn interval(&self, m: f64) -> usize {
-        let me = &self.m_ends;
-        let b = |i: usize| (m >= me[i]) as usize;
-        ((b(1) + b(2)) + (b(3) + b(4)))
-            + ((b(5) + b(6)) + (b(7) + b(8)))
-            + (((b(9) + b(10)) + (b(11) + b(12))) + ((b(13) + b(14)) + b(15)))
-    }
-
-    /// Starting value in the e -> 1, E -> 0 corner from the geometric
-    /// table, with f0 = E0 - e sin E0 - M and f1 = 1 - e cos E0 written so
-    /// that nothing cancels when e -> 1 and E0 -> 0.
-    #[inline(never)]
-    fn corner_start(&self, m: f64) -> (f64, f64, f64, f64, f64) {
-        let e = self.e;
-        let table = &self.corner;
-        let mut i = 0;
-        for &mi in &table.m_ends[1..] {
-            i += (m >= mi) as usize;
-        }
-        let i = i.min(table.len - 1);
-        let c = &table.coef[i];
-        let t = m - table.m_ends[i];
-        let t2 = t * t;
-        let d0 = -table.half[i] + t * ((c[0] + t * c[1]) + t2 * ((c[2] + t * c[3]) + t2 * c[4]));
-        let mid = &table.mid[i];
-        let (sin_m_x, cos_m_1) = small_sin_cos_deviations(d0);
-        let sin_d = d0 + sin_m_x;
-        let (sm, omc) = (mid.sin, mid.one_minus_cos);
-        let cm = 1.0 - omc;
-        let e0 = mid.e + d0;
-        let s0 = sm + (sm * cos_m_1 + cm * sin_d);
-        // E0 - sin E0 = (Em - sin Em) + d0 - (sm (cos d - 1) + cm sin d)
-        //             = (Em - sin Em) + d0 (1 - cm) - cm (sin d - d) - sm (cos d - 1).
-        let e_minus_sin = mid.e_minus_sin + (d0 * omc - cm * sin_m_x - sm * cos_m_1);
-        // 1 - cos E0 = (1 - cm) - (cm (cos d - 1) - sm sin d).
-        let one_minus_cos = omc - (cm * cos_m_1 - sm * sin_d);
-        let f0 = (self.one_minus_e * e0 + e * e_minus_sin) - m;
-        let f1 = self.one_minus_e + e * one_minus_cos;
-        (e0, s0, 1.0 - one_minus_cos, f0, f1)
     }
 }
 
