@@ -451,7 +451,8 @@ pub fn split_rhat(draws: &[f64], n_steps: usize, n_walkers: usize) -> f64 {
         .unwrap_or(f64::NAN)
 }
 
-/// Bulk effective sample size; NaN on invalid input.
+/// Bulk effective sample size (draws of all walkers together); NaN on
+/// invalid input or fewer than 8 steps (split halves shorter than 4).
 pub fn ess_bulk(draws: &[f64], n_steps: usize, n_walkers: usize) -> f64 {
     DiagnosticsWorkspace::new()
         .ess_bulk(draws, n_steps, n_walkers)
@@ -459,7 +460,7 @@ pub fn ess_bulk(draws: &[f64], n_steps: usize, n_walkers: usize) -> f64 {
 }
 
 /// Tail effective sample size (min over the 5 and 95 per cent quantile
-/// indicators); NaN on invalid input.
+/// indicators); NaN on invalid input or fewer than 8 steps.
 pub fn ess_tail(draws: &[f64], n_steps: usize, n_walkers: usize) -> f64 {
     DiagnosticsWorkspace::new()
         .ess_tail(draws, n_steps, n_walkers)
@@ -666,7 +667,7 @@ impl DiagnosticsWorkspace {
         let half = n_steps / 2;
         // Quantiles of all draws; for an even chain length the split halves
         // are all the draws.
-        let quantiles = if n_steps % 2 == 0 {
+        let quantiles = if n_steps.is_multiple_of(2) {
             self.ensure_bulk();
             [0.05, 0.95].map(|p| quantile_type7_sorted(&self.sorted, p))
         } else {

@@ -265,7 +265,7 @@ fn check_ladder<'a, L: AsRef<[f64]>>(
     let series: Vec<&[f64]> = log_likelihoods.iter().map(AsRef::as_ref).collect();
     let n_steps = series[0].len() / n_walkers;
     for (temperature, s) in series.iter().enumerate() {
-        if s.len() % n_walkers != 0 {
+        if !s.len().is_multiple_of(n_walkers) {
             return Err(EvidenceError::RaggedSeries {
                 temperature,
                 len: s.len(),
