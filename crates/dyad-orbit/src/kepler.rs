@@ -118,6 +118,9 @@ const CORNER_INTERVALS: usize = 4;
 const CORNER_MAX: usize = 42;
 /// Ratio of consecutive ends of the geometric corner table.
 const CORNER_RATIO: f64 = 0.7;
+/// Fewest geometric ends, so that the first interval [0, (pi/4) 0.7^6] is
+/// at most 0.093 wide.
+const CORNER_MIN: usize = 7;
 
 /// E, sin E, cos E, E - sin E and 1 - cos E, the last two free of
 /// cancellation for small E.
@@ -241,7 +244,7 @@ impl CornerTable {
             .iter()
             .take_while(|n| n.e >= e_lin)
             .count()
-            .max(1);
+            .max(CORNER_MIN);
         let len = geometric.min(CORNER_MAX);
         // Ascending ends: 0, E_{len-1}, ..., E_0 = pi/4.
         let mut ends = [SmallAngle::default(); CORNER_MAX + 1];
