@@ -11,6 +11,7 @@ static COUNTING: alloc::CountingAllocator = alloc::CountingAllocator;
 
 mod bounded;
 mod curved;
+mod diagnosis;
 mod gaussian;
 mod kill_resume;
 mod moves;
