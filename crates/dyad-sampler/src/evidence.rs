@@ -80,6 +80,10 @@ pub struct EvidenceEstimate {
     pub mc_error: f64,
     /// Quadrature error bound (thermodynamic integration only).
     pub discretisation_error: Option<f64>,
+    /// Whether the batches behind `mc_error` were at least five
+    /// autocorrelation times long (with at least four batches); if not, the
+    /// chains are too short and `mc_error` is likely an underestimate.
+    pub mc_error_reliable: bool,
     /// The estimator.
     pub method: EvidenceMethod,
 }
@@ -404,10 +408,11 @@ pub fn thermodynamic_integration<L: AsRef<[f64]>>(
                 .sum()
         })
         .collect();
-    let mc_error = batch_means_error(&combined);
+    let (mc_error, mc_error_reliable) = batch_means_error(&combined);
     Ok(EvidenceEstimate {
         ln_z,
         mc_error,
+        mc_error_reliable,
         discretisation_error: Some(discretisation_error),
         method: EvidenceMethod::ThermodynamicIntegration,
     })
@@ -441,10 +446,11 @@ pub fn stepping_stone<L: AsRef<[f64]>>(
             *c += w / mean_weight;
         }
     }
-    let mc_error = batch_means_error(&combined);
+    let (mc_error, mc_error_reliable) = batch_means_error(&combined);
     Ok(EvidenceEstimate {
         ln_z,
         mc_error,
+        mc_error_reliable,
         discretisation_error: None,
         method: EvidenceMethod::SteppingStone,
     })
@@ -483,11 +489,12 @@ pub fn estimate_evidence(
 }
 
 /// Standard error of the mean of `series` by batch means (see the module
-/// docs for the batch size). Zero for a constant series.
-fn batch_means_error(series: &[f64]) -> f64 {
+/// docs for the batch size), and whether the batches were long enough.
+/// Zero for a constant series.
+fn batch_means_error(series: &[f64]) -> (f64, bool) {
     let n = series.len();
     if series.iter().all(|&x| x == series[0]) {
-        return 0.0;
+        return (0.0, true);
     }
     let tau = AutocorrEstimator::new()
         .estimate(series, n, 1)
@@ -498,6 +505,7 @@ fn batch_means_error(series: &[f64]) -> f64 {
     } else {
         f64::INFINITY
     };
+    let reliable = by_tau <= (n / 4) as f64;
     let batch = (by_sqrt.max(by_tau) as usize).clamp(1, n / 4);
     let n_batches = n / batch;
     let skip = n - n_batches * batch;
@@ -509,7 +517,7 @@ fn batch_means_error(series: &[f64]) -> f64 {
         .map(|m| (m - used_mean) * (m - used_mean))
         .sum::<f64>()
         / (n_batches as f64 - 1.0);
-    (var_between / n_batches as f64).sqrt()
+    ((var_between / n_batches as f64).sqrt(), reliable)
 }
 
 /// Posterior probabilities and odds of windows (e.g. period ranges) from
@@ -692,6 +700,31 @@ mod tests {
         // A constant likelihood L = e^0 = 1 has ln Z = 0 exactly, no MC error.
         let ss = stepping_stone(&[1.0, 0.5, 0.0], 2, &ll).unwrap();
         assert_eq!((ss.ln_z, ss.mc_error), (0.0, 0.0));
+    }
+
+    #[test]
+    fn batch_means_flags_chains_too_short_for_their_autocorrelation() {
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, StandardNormal};
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(3);
+        let mut ar1 = |phi: f64, n: usize| -> Vec<f64> {
+            let mut x = 0.0;
+            (0..n)
+                .map(|_| {
+                    let e: f64 = StandardNormal.sample(&mut rng);
+                    x = phi * x + e;
+                    x
+                })
+                .collect()
+        };
+        // tau ~ 199 steps in a 400-step series: batches cannot be 5 tau long.
+        assert!(!batch_means_error(&ar1(0.99, 400)).1);
+        // tau ~ 1 in 4000 steps: fine, and the error is close to 1/sqrt(n)
+        // (unit-variance white noise; 20 per cent covers the estimate's own
+        // scatter with its ~60 batches at 4 sigma).
+        let (err, ok) = batch_means_error(&ar1(0.0, 4000));
+        assert!(ok);
+        assert!((err * 4000f64.sqrt() - 1.0).abs() < 0.4, "{err}");
     }
 
     #[test]

@@ -132,6 +132,7 @@ fn check_dimension(d: usize, seed: u64) {
             est.mc_error,
             est.discretisation_error
         );
+        assert!(est.mc_error_reliable);
         // The quoted errors are informative, not huge.
         assert!(
             est.total_error() < 0.1,

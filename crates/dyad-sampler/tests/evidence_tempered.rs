@@ -78,6 +78,10 @@ fn tempered_evidence<D: LogDensity>(
 fn check(name: &str, est: &EvidenceEstimate, truth: f64) {
     let miss = (est.ln_z - truth).abs();
     assert!(
+        est.mc_error_reliable,
+        "{name}: chains too short for the error estimate"
+    );
+    assert!(
         miss < 0.1 && miss < 4.0 * est.total_error(),
         "{name} {:?}: ln Z {} vs analytic {truth} (mc {}, discretisation {:?})",
         est.method,
