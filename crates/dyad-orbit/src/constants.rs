@@ -41,6 +41,6 @@ pub const DEG: f64 = PI / 180.0;
 pub const GM_SUN_AU3_YR2: f64 =
     GM_SUN_M3_S2 / (AU_M * AU_M * AU_M) * (JULIAN_YEAR_S * JULIAN_YEAR_S);
 
-/// The exact factor k in Kepler's third law M[M_sun] = k a_au^3 / P_yr^2:
+/// The exact factor k in Kepler's third law `M[M_sun] = k a_au^3 / P_yr^2`:
 /// k = 4 pi^2 / (GM_sun in au^3 yr^-2) = 1.0000377738...
 pub const KEPLER_THIRD_LAW_FACTOR: f64 = 4.0 * PI * PI / GM_SUN_AU3_YR2;

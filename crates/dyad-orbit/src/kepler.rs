@@ -1,19 +1,26 @@
 //! Kepler's equation `M = E - e sin E` for elliptic orbits (0 <= e < 1).
 //!
-//! Method: the starting value of F. L. Markley, "Kepler equation solver",
-//! Celestial Mechanics and Dynamical Astronomy 63, 101 (1995), which solves a
-//! cubic built on a Pade approximant of sin E (error below 4e-4 rad over the
-//! whole (M, e) domain), followed by Markley's single fifth-order correction
-//! (his eqs. 20-22). sin E and cos E are computed once, at the starting
-//! value, with a short polynomial valid on [0, pi] (the mean anomaly is
-//! first reduced to [0, pi] by the symmetries of the equation), and carried
-//! through the correction dE by the addition theorem with Taylor series in
-//! dE, so a solve costs one sin/cos evaluation and no iteration.
+//! Two solvers, both with |E - e sin E - M| <= 4e-15 rad for every real M
+//! and 0 <= e <= 1 - 1e-12 (crate tests: dense grids and random cases,
+//! including e = 0.999999 near periastron; typically 1 ulp of M), and
+//! returning sin E and cos E that agree with `f64::sin`/`f64::cos` of the
+//! returned E to 1e-15:
 //!
-//! Accuracy: |E - e sin E - M| below a few 1e-16 rad (measured over dense
-//! grids and random tests, including e = 0.999999 near periastron); the
-//! returned sin E and cos E agree with `f64::sin`/`f64::cos` of the
-//! returned E to about 1e-16.
+//! - [`KeplerSolver`]: built once per eccentricity (tables, ~0.3 us), then
+//!   fast: a polynomial start and one correction, no libm call; use
+//!   [`KeplerSolver::solve_many`] (or [`crate::Orbit::states_into`]) for many
+//!   mean anomalies, which runs groups of [`LANES`] in vector registers.
+//!   See its docs for the method and PERFORMANCE.md for measured speed.
+//! - [`solve_kepler`]: no set-up, for one-off solves: the starting value of
+//!   F. L. Markley, "Kepler equation solver", Celestial Mechanics and
+//!   Dynamical Astronomy 63, 101 (1995), a cubic built on a Pade
+//!   approximant of sin E (error below 4e-4 rad everywhere), then Markley's
+//!   single fifth-order correction (his eqs. 20-22); sin E and cos E come
+//!   from one evaluation at the start, carried through the correction by
+//!   the addition theorem.
+//!
+//! The mean anomaly is first reduced to [-pi, pi] ([`reduce_mean_anomaly`])
+//! and then to [0, pi] by E(-M) = -E(M).
 
 // The constants below keep the digits exactly as published in fdlibm.
 #![allow(clippy::excessive_precision)]
@@ -319,8 +326,11 @@ impl CornerTable {
 ///   start and correction; E - sin E and 1 - cos E are carried separately
 ///   so that nothing cancels as e -> 1 and E -> 0.
 ///
-/// Measured accuracy: |E - e sin E - M| <= 2e-15 rad over dense grids for
+/// Measured accuracy: |E - e sin E - M| <= 4e-15 rad over dense grids for
 /// 0 <= e <= 1 - 1e-12 (see the crate tests).
+///
+/// The tables make the solver about 5 KB; [`KeplerSolver::new`] takes
+/// ~0.3 us (measured, PERFORMANCE.md), the time of ~20 batch solves.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct KeplerSolver {
     e: f64,

@@ -12,7 +12,9 @@
 //! perturbations by third bodies, or unbound (e >= 1) orbits.
 //!
 //! Brief overview:
-//! - [`kepler::solve_kepler`] and [`kepler::KeplerSolver`]: E, sin E, cos E.
+//! - [`kepler::KeplerSolver`] (fast, per eccentricity, with a batch
+//!   [`kepler::KeplerSolver::solve_many`]) and [`kepler::solve_kepler`]
+//!   (no set-up): E, sin E, cos E to machine precision.
 //! - [`elements::CampbellElements`], [`elements::ThieleInnes`]: the orbit.
 //! - [`orbit::Orbit`]: precomputed orbit, positions and velocity shape
 //!   ([`orbit::OrbitState`]) at one epoch or a batch.
