@@ -1,20 +1,75 @@
 //! The `dyad` command line: parses arguments and wires the crates together.
+//!
+//! Commands: `fit` (sample a posterior into a run folder), `resume`
+//! (continue a stopped run), `report` (redraw summaries and plots), `check`
+//! (validate a configuration without sampling), `simulate` (invented data
+//! from known elements), `periods` (compare period windows by evidence) and
+//! `predict` (where the companion will be at given epochs).
+
+mod check;
+mod density;
+mod fit;
+mod plan;
+mod posterior;
+mod progress;
+mod run_folder;
 
 use std::path::PathBuf;
+use std::process::ExitCode;
 
-use anyhow::Context;
+use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
 
-/// Bayesian orbits and masses of binary stars.
+/// Bayesian orbits and masses of binary stars from relative astrometry and
+/// radial velocities.
 #[derive(Parser)]
 #[command(name = "dyad", version, about)]
 struct Cli {
+    /// Worker threads for evaluating walkers (default: all cores). Results
+    /// depend on the seed only, never on this.
+    #[arg(long, global = true)]
+    threads: Option<usize>,
     #[command(subcommand)]
     command: Command,
 }
 
 #[derive(Subcommand)]
 enum Command {
+    /// Sample the posterior of a run configuration and write a run folder.
+    Fit {
+        /// The run configuration (TOML; keys in configs/README.md).
+        config: PathBuf,
+        /// Run folder to write instead of the configuration's [output] folder.
+        #[arg(long)]
+        output: Option<PathBuf>,
+        /// Reuse a run folder that already holds files.
+        #[arg(long)]
+        overwrite: bool,
+        /// No progress bar and no summary on the terminal.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Continue a stopped run from its checkpoint.
+    Resume {
+        /// The run folder.
+        run: PathBuf,
+        /// New total number of steps (default: the configuration's max_steps).
+        #[arg(long)]
+        max_steps: Option<u64>,
+        /// No progress bar and no summary on the terminal.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Redraw the summaries and plots of a run folder.
+    Report {
+        /// The run folder.
+        run: PathBuf,
+    },
+    /// Validate a configuration and its data and say what a fit would do.
+    Check {
+        /// The run configuration.
+        config: PathBuf,
+    },
     /// Write invented measurements of a binary with known elements, as
     /// described by a scenario file (see demo-data/README.md).
     Simulate {
@@ -26,9 +81,34 @@ enum Command {
     },
 }
 
-fn main() -> anyhow::Result<()> {
-    let cli = Cli::parse();
+fn run(cli: Cli) -> Result<()> {
+    if let Some(n) = cli.threads {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n.max(1))
+            .build_global()
+            .context("setting up the worker threads")?;
+    }
     match cli.command {
+        Command::Fit {
+            config,
+            output,
+            overwrite,
+            quiet,
+        } => fit::fit(
+            &config,
+            &fit::FitOptions {
+                output,
+                overwrite,
+                quiet,
+            },
+        ),
+        Command::Resume {
+            run,
+            max_steps,
+            quiet,
+        } => fit::resume(&run, max_steps, quiet),
+        Command::Report { run } => posterior::report(&run),
+        Command::Check { config } => check::check(&config),
         Command::Simulate {
             scenario,
             overwrite,
@@ -38,7 +118,17 @@ fn main() -> anyhow::Result<()> {
             for file in written {
                 println!("wrote {}", file.display());
             }
+            Ok(())
         }
     }
-    Ok(())
+}
+
+fn main() -> ExitCode {
+    match run(Cli::parse()) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("error: {e:#}");
+            ExitCode::FAILURE
+        }
+    }
 }

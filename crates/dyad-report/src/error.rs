@@ -37,7 +37,8 @@ pub enum ReportError {
 }
 
 impl ReportError {
-    pub(crate) fn io(path: impl Into<PathBuf>, source: std::io::Error) -> Self {
+    /// An I/O error at a path.
+    pub fn io(path: impl Into<PathBuf>, source: std::io::Error) -> Self {
         ReportError::Io {
             path: path.into(),
             source,

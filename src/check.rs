@@ -1,0 +1,129 @@
+//! `dyad check CONFIG`: validate a configuration and its data and say what a
+//! fit would do, without sampling. Also the run description printed at the
+//! start of `dyad fit` and kept in the report.
+
+use std::f64::consts::PI;
+use std::path::Path;
+
+use anyhow::Result;
+
+use dyad_model::config::RunConfig;
+use dyad_model::data::Star;
+use dyad_model::likelihood::Model;
+use dyad_model::params::{FitMode, InclinationPrior, ScaledPrior};
+
+use crate::plan::SamplingPlan;
+
+/// `dyad check CONFIG`.
+pub fn check(config_path: &Path) -> Result<()> {
+    let config = RunConfig::load(config_path)?;
+    let model = Model::from_config(&config)?;
+    let plan = SamplingPlan::new(&config, &model, None)?;
+    println!("{}", describe(&config, &model, &plan));
+    println!("configuration and data are valid.");
+    Ok(())
+}
+
+/// A prior in the unit the user gave it in.
+pub fn describe_prior(p: &ScaledPrior, internal_unit: &str) -> String {
+    let s = p.scale();
+    let unit = if (s - 365.25).abs() < 1e-9 {
+        "yr"
+    } else if (s - PI / 180.0).abs() < 1e-15 {
+        "deg"
+    } else if (s - 1.0).abs() < 1e-15 {
+        internal_unit
+    } else {
+        return format!("{} x {s} {internal_unit}", p.prior().describe());
+    };
+    if unit.is_empty() {
+        p.prior().describe()
+    } else {
+        format!("{} {unit}", p.prior().describe())
+    }
+}
+
+/// The priors that matter for this model, as (quantity, description) pairs.
+pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
+    let layout = model.layout();
+    let p = layout.priors();
+    let mut lines = vec![
+        ("period".to_owned(), describe_prior(&p.period_days, "d")),
+        ("eccentricity".to_owned(), describe_prior(&p.eccentricity, "")),
+        ("omega (secondary)".to_owned(), describe_prior(&p.omega_rad, "rad")),
+    ];
+    let mode = model.mode();
+    if mode != FitMode::VelocitiesOnly {
+        let inc = match &p.inclination {
+            InclinationPrior::Isotropic => "isotropic (uniform cos i)".to_owned(),
+            InclinationPrior::Angle(a) => describe_prior(a, "rad"),
+        };
+        lines.push(("inclination".to_owned(), inc));
+        lines.push(("node (Omega)".to_owned(), describe_prior(&p.node_rad, "rad")));
+        lines.push(("total mass".to_owned(), describe_prior(&p.total_mass_msun, "M_sun")));
+        lines.push(("parallax".to_owned(), describe_prior(&p.parallax_mas, "mas")));
+    }
+    if mode == FitMode::Joint {
+        lines.push(("mass ratio q".to_owned(), describe_prior(&p.mass_ratio, "")));
+    }
+    if mode == FitMode::VelocitiesOnly {
+        if layout.has_velocities_of(Star::Primary) {
+            lines.push(("K1".to_owned(), describe_prior(&p.k1_kms, "km/s")));
+        }
+        if layout.has_velocities_of(Star::Secondary) {
+            lines.push(("K2".to_owned(), describe_prior(&p.k2_kms, "km/s")));
+        }
+    }
+    for (k, name) in model.dataset().instruments.iter().enumerate() {
+        lines.push((format!("offset [{name}]"), describe_prior(&p.offset_kms[k], "km/s")));
+        lines.push((format!("jitter [{name}]"), describe_prior(&p.jitter_kms[k], "km/s")));
+    }
+    lines
+}
+
+/// The data, model, priors and sampler plan in a few lines.
+pub fn describe(config: &RunConfig, model: &Model, plan: &SamplingPlan) -> String {
+    let data = model.dataset();
+    let count = |star| data.velocities.iter().filter(|v| v.star == star).count();
+    let mut out = String::new();
+    let mode = match model.mode() {
+        FitMode::Joint => "joint fit of relative astrometry and radial velocities",
+        FitMode::AstrometryOnly => "relative astrometry only (Omega folded to [0, 180) deg)",
+        FitMode::VelocitiesOnly => "radial velocities only (no inclination, node or parallax)",
+    };
+    out.push_str(&format!("configuration: {}\n", config.file.display()));
+    out.push_str(&format!("model: {mode}\n"));
+    out.push_str(&format!(
+        "data: {} astrometric epochs; {} primary and {} secondary velocities from {} instrument(s)\n",
+        data.astrometry.len(),
+        count(Star::Primary),
+        count(Star::Secondary),
+        data.instruments.len()
+    ));
+    out.push_str(&format!(
+        "sampled parameters ({}): {}\n",
+        model.dim(),
+        model.parameter_names().join(", ")
+    ));
+    out.push_str("priors:\n");
+    for (name, prior) in prior_lines(model) {
+        out.push_str(&format!("  {name:<20} {prior}\n"));
+    }
+    let s = &plan.sampler;
+    out.push_str(&format!(
+        "sampler: {} walkers, at most {} steps (stops earlier once longer than 50 autocorrelation times), thinning {}, seed {}\n",
+        s.n_walkers, s.max_steps, s.thin, s.seed
+    ));
+    match &s.tempering {
+        Some(t) => out.push_str(&format!(
+            "tempering: {} temperatures, ladder adapted for {} steps then frozen\n",
+            t.n_temperatures, t.burn_in_steps
+        )),
+        None => out.push_str("tempering: off\n"),
+    }
+    for note in &plan.notes {
+        out.push_str(&format!("note: {note}\n"));
+    }
+    out.push_str(&format!("output folder: {}", config.output.folder.display()));
+    out
+}

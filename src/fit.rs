@@ -1,0 +1,285 @@
+//! `dyad fit`, `dyad resume`: run the sampler on a configuration, with a
+//! progress bar, Ctrl-C handling and checkpoints, then write the report.
+
+use std::fs;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
+
+use anyhow::{bail, Context, Result};
+use serde::{Deserialize, Serialize};
+
+use dyad_model::config::RunConfig;
+use dyad_model::likelihood::Model;
+use dyad_model::start::{find_starting_points, StartSettings};
+use dyad_sampler::evidence::estimate_evidence;
+use dyad_sampler::{
+    CheckpointConfig, FileSink, LogDensity, RunControl, RunDiagnostics, RunResult, RunStatus,
+    Start,
+};
+
+use crate::density::Posterior;
+use crate::plan::{checkpoint_every, SamplingPlan};
+use crate::progress::ProgressBar;
+use crate::run_folder::{write_text, ExistingRun, Provenance, RunFiles};
+
+/// Options of `dyad fit`.
+pub struct FitOptions {
+    /// Run folder instead of the configuration's `[output] folder`.
+    pub output: Option<PathBuf>,
+    /// Reuse a run folder that holds files already.
+    pub overwrite: bool,
+    /// No progress bar.
+    pub quiet: bool,
+}
+
+/// How a run ended, written to `outcome.json` when the sampler returns.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct Outcome {
+    /// "converged", "step cap" or "stopped by the user".
+    pub status: String,
+    /// Steps done in total.
+    pub steps: u64,
+    /// Steps discarded as burn-in.
+    pub burn_in: u64,
+    /// Warnings from the sampler (unconverged chain, stuck walkers, ...).
+    pub warnings: Vec<String>,
+    /// Cold-chain diagnostics.
+    pub diagnostics: serde_json::Value,
+    /// Inverse temperatures of the final ladder.
+    pub betas: Vec<f64>,
+    /// Swap acceptance between neighbouring temperatures.
+    pub swap_acceptance: Vec<f64>,
+    /// Evidence, when the run was tempered.
+    pub evidence: Option<serde_json::Value>,
+}
+
+impl Outcome {
+    fn from_result(result: &RunResult, plan: &SamplingPlan) -> Result<Self> {
+        let status = match result.status {
+            RunStatus::Converged => "converged",
+            RunStatus::StepCap => "step cap",
+            RunStatus::Cancelled => "stopped by the user",
+        };
+        let fraction_burn_in = (plan.burn_in_fraction * result.steps as f64).round() as u64;
+        let evidence = match &result.tempered {
+            Some(t) if result.status != RunStatus::Cancelled => Some(serde_json::to_value(
+                estimate_evidence(t).context("estimating the evidence from the tempered chains")?,
+            )?),
+            _ => None,
+        };
+        Ok(Self {
+            status: status.to_owned(),
+            steps: result.steps,
+            burn_in: result.burn_in.max(fraction_burn_in),
+            warnings: result.warnings.clone(),
+            diagnostics: diagnostics_json(&result.diagnostics)?,
+            betas: result.betas.clone(),
+            swap_acceptance: result.swap_acceptance.clone(),
+            evidence,
+        })
+    }
+
+    /// Reads `outcome.json` of a run.
+    pub fn read(files: &RunFiles) -> Result<Self> {
+        let path = files.outcome();
+        let text = fs::read_to_string(&path).with_context(|| {
+            format!(
+                "reading {} (the run has not finished a sampling session yet: `dyad resume {}`)",
+                path.display(),
+                files.folder.display()
+            )
+        })?;
+        serde_json::from_str(&text).with_context(|| format!("{}: not a valid outcome record", path.display()))
+    }
+
+    fn write(&self, files: &RunFiles) -> Result<()> {
+        write_text(&files.outcome(), &serde_json::to_string_pretty(self)?)
+    }
+}
+
+fn diagnostics_json(d: &RunDiagnostics) -> Result<serde_json::Value> {
+    Ok(serde_json::to_value(d)?)
+}
+
+/// A cancel flag set by Ctrl-C (installed once per process).
+fn ctrl_c_flag() -> Arc<AtomicBool> {
+    let flag = Arc::new(AtomicBool::new(false));
+    let handler_flag = flag.clone();
+    // Installing fails only if a handler exists already; the run then simply
+    // cannot be interrupted cleanly, which is no reason to refuse to run.
+    let _ = ctrlc::set_handler(move || handler_flag.store(true, Ordering::SeqCst));
+    flag
+}
+
+/// The starting ensemble: a small ball around the best point the search
+/// found, or (tempered runs) walkers spread round-robin over every distinct
+/// mode it found.
+fn starting_ensemble(model: &Model, config: &RunConfig, plan: &SamplingPlan) -> Result<Start<'static>> {
+    let settings = StartSettings {
+        seed: config.sampler.seed,
+        ..StartSettings::default()
+    };
+    let modes = find_starting_points(model, &settings, Some(&config.start));
+    let Some(best) = modes.first() else {
+        bail!(
+            "no starting point with a finite posterior density was found: \
+             check that the priors allow the data (e.g. the period range) or give [start] values"
+        );
+    };
+    let dim = model.dim();
+    let scales: Vec<Vec<f64>> = modes.iter().map(|m| ball_scale(model, &m.x)).collect();
+    if !plan.tempered() || modes.len() == 1 {
+        return Ok(Start::Ball {
+            centre: best.x.clone(),
+            scale: scales[0].clone(),
+        });
+    }
+    // Deterministic spread: walker w starts at mode w mod n plus a fixed
+    // pattern of offsets derived from the seed.
+    use rand::{Rng, SeedableRng};
+    let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(config.sampler.seed ^ 0x5eed);
+    let nw = plan.sampler.n_walkers;
+    let mut positions = Vec::with_capacity(nw * dim);
+    for w in 0..nw {
+        let m = w % modes.len();
+        for i in 0..dim {
+            let n: f64 = rng.sample(rand_distr::StandardNormal);
+            positions.push(modes[m].x[i] + scales[m][i] * n);
+        }
+    }
+    Ok(Start::Positions(positions))
+}
+
+/// Per-coordinate spread of the starting ball: a tenth of the curvature
+/// width 1/sqrt(-d2 ln p / dx2) from central differences, clamped to a sane
+/// range (common practice for ensemble starts).
+fn ball_scale(model: &Model, x: &[f64]) -> Vec<f64> {
+    let f0 = model.log_posterior(x);
+    let mut y = x.to_vec();
+    (0..x.len())
+        .map(|i| {
+            let h = 1e-4 * x[i].abs().max(1e-2);
+            y[i] = x[i] + h;
+            let fp = model.log_posterior(&y);
+            y[i] = x[i] - h;
+            let fm = model.log_posterior(&y);
+            y[i] = x[i];
+            let d2 = (fp - 2.0 * f0 + fm) / (h * h);
+            let width = if d2.is_finite() && d2 < 0.0 { 1.0 / (-d2).sqrt() } else { 1e-3 };
+            (0.1 * width).clamp(1e-9, 0.1)
+        })
+        .collect()
+}
+
+fn run_sampler(
+    density: &dyn LogDensity,
+    plan: &SamplingPlan,
+    sink: &mut FileSink,
+    start: Option<&Start<'_>>,
+    quiet: bool,
+) -> Result<RunResult> {
+    let cancel = ctrl_c_flag();
+    let mut bar = ProgressBar::new(plan.sampler.max_steps, quiet);
+    let mut on_progress = |p: &dyad_sampler::Progress| bar.update(p);
+    let control = RunControl {
+        progress: Some(&mut on_progress),
+        cancel: Some(cancel),
+    };
+    let result = match start {
+        Some(start) => dyad_sampler::run(density, &plan.sampler, start, sink, control),
+        None => dyad_sampler::resume(density, &plan.sampler, sink, control),
+    };
+    bar.finish();
+    Ok(result?)
+}
+
+/// `dyad fit CONFIG`.
+pub fn fit(config_path: &Path, options: &FitOptions) -> Result<()> {
+    let config_text = fs::read_to_string(config_path)
+        .with_context(|| format!("reading {}", config_path.display()))?;
+    let config = RunConfig::from_toml_str(&config_text, config_path)?;
+    let model = Model::from_config(&config)?;
+    let folder = options.output.clone().unwrap_or_else(|| config.output.folder.clone());
+    dyad_report::prepare_run_folder(&folder, options.overwrite)
+        .with_context(|| format!("preparing the run folder {}", folder.display()))?;
+    let files = RunFiles::new(&folder);
+    // A fresh run in a reused folder: remove the previous run's outputs so
+    // that nothing stale can be mistaken for this run's.
+    for stale in [files.outcome(), files.checkpoint(), files.chain()] {
+        if stale.exists() {
+            fs::remove_file(&stale).with_context(|| format!("removing {}", stale.display()))?;
+        }
+    }
+    let provenance = Provenance::record(&config, &config_text)?;
+    write_text(&files.config_copy(), &config_text)?;
+    write_text(&files.provenance(), &serde_json::to_string_pretty(&provenance)?)?;
+
+    let plan = SamplingPlan::new(&config, &model, Some(checkpoint_config(&files)))?;
+    if !options.quiet {
+        eprintln!("{}", crate::check::describe(&config, &model, &plan));
+        eprintln!("searching for a starting point ...");
+    }
+    let start = starting_ensemble(&model, &config, &plan)?;
+    let density = Posterior::new(&model);
+    let mut sink = FileSink::create_samples(files.chain(), model.dim(), plan.sampler.n_walkers)?;
+    let result = run_sampler(&density, &plan, &mut sink, Some(&start), options.quiet)?;
+    finish(&files, &config, &model, &plan, &result, options.quiet)
+}
+
+/// `dyad resume RUN`: continues a stopped run up to its total step count
+/// (or a new total), bit-identically to a run that was never interrupted.
+pub fn resume(folder: &Path, max_steps: Option<u64>, quiet: bool) -> Result<()> {
+    let run = ExistingRun::open(folder)?;
+    let model = Model::from_config(&run.config)?;
+    let mut plan = SamplingPlan::new(&run.config, &model, Some(checkpoint_config(&run.files)))?;
+    if let Some(total) = max_steps {
+        plan.sampler.max_steps = total;
+    }
+    if !run.files.checkpoint().is_file() {
+        bail!("{} has no checkpoint to resume from", folder.display());
+    }
+    let done = dyad_sampler::checkpoint_step(run.files.checkpoint())?;
+    if done >= plan.sampler.max_steps {
+        bail!(
+            "the run has done {done} of its {} steps already; give a larger total with --max-steps",
+            plan.sampler.max_steps
+        );
+    }
+    if !quiet {
+        eprintln!("resuming at step {done} of {}", plan.sampler.max_steps);
+    }
+    let density = Posterior::new(&model);
+    let mut sink = FileSink::open(run.files.chain())?;
+    let result = run_sampler(&density, &plan, &mut sink, None, quiet)?;
+    finish(&run.files, &run.config, &model, &plan, &result, quiet)
+}
+
+fn checkpoint_config(files: &RunFiles) -> CheckpointConfig {
+    CheckpointConfig::new(files.checkpoint(), checkpoint_every())
+}
+
+fn finish(
+    files: &RunFiles,
+    config: &RunConfig,
+    model: &Model,
+    plan: &SamplingPlan,
+    result: &RunResult,
+    quiet: bool,
+) -> Result<()> {
+    let outcome = Outcome::from_result(result, plan)?;
+    outcome.write(files)?;
+    for w in &outcome.warnings {
+        eprintln!("warning: {w}");
+    }
+    if result.status == RunStatus::Cancelled {
+        eprintln!(
+            "stopped at step {} of {}; the state is checkpointed: continue with `dyad resume {}`",
+            result.steps,
+            plan.sampler.max_steps,
+            files.folder.display()
+        );
+        return Ok(());
+    }
+    crate::posterior::write_report(files, config, model, &outcome, quiet)
+}

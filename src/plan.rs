@@ -1,0 +1,112 @@
+//! From a run configuration to sampler settings: walkers, steps, moves,
+//! checkpoints, and whether to temper. Kept in one place so that `fit`,
+//! `resume` and `check` agree exactly (a resumed run must rebuild the very
+//! same sampler configuration, or its checkpoint is refused).
+
+use std::time::Duration;
+
+use anyhow::{bail, Result};
+
+use dyad_model::config::{RunConfig, Tempering};
+use dyad_model::likelihood::Model;
+use dyad_sampler::{CheckpointConfig, Convergence, Move, MoveMixture, TemperingConfig};
+
+/// Fewest astrometric epochs for which `temperatures = "auto"` does not
+/// temper: below this an orbit is usually only partly constrained and its
+/// posterior may have several period modes.
+pub const SPARSE_ASTROMETRY_EPOCHS: usize = 10;
+
+/// Temperatures used when tempering is automatic.
+pub const AUTO_TEMPERATURES: usize = 8;
+
+/// The sampler settings of a run, and why they were chosen.
+pub struct SamplingPlan {
+    /// The sampler configuration.
+    pub sampler: dyad_sampler::RunConfig,
+    /// Share of the steps always discarded as burn-in, whatever the
+    /// autocorrelation-based burn-in says.
+    pub burn_in_fraction: f64,
+    /// Plain-language notes for the user (why tempering is on, ...).
+    pub notes: Vec<String>,
+}
+
+/// Whether the data are sparse enough for automatic tempering.
+pub fn is_sparse(model: &Model) -> bool {
+    let n = model.dataset().astrometry.len();
+    n > 0 && n < SPARSE_ASTROMETRY_EPOCHS
+}
+
+impl SamplingPlan {
+    /// The plan for `config` and `model`, checkpointing to `checkpoint` if given.
+    pub fn new(
+        config: &RunConfig,
+        model: &Model,
+        checkpoint: Option<CheckpointConfig>,
+    ) -> Result<Self> {
+        let s = &config.sampler;
+        let dim = model.dim();
+        let minimum = 2 * dim + 2;
+        if s.walkers < minimum || s.walkers % 2 == 1 {
+            bail!(
+                "{}: [sampler] walkers = {} will not do for {} sampled parameters: \
+                 the ensemble needs an even number of at least {} walkers",
+                config.file.display(),
+                s.walkers,
+                dim,
+                minimum + minimum % 2
+            );
+        }
+        let mut notes = Vec::new();
+        let n_temps = match s.tempering {
+            Tempering::Off => 1,
+            Tempering::Temperatures(n) => n,
+            Tempering::Auto => {
+                if is_sparse(model) {
+                    notes.push(format!(
+                        "only {} astrometric epochs: parallel tempering with {} temperatures \
+                         explores every period mode and gives the evidence",
+                        model.dataset().astrometry.len(),
+                        AUTO_TEMPERATURES
+                    ));
+                    AUTO_TEMPERATURES
+                } else {
+                    1
+                }
+            }
+        };
+        let mut sampler = dyad_sampler::RunConfig::new(s.walkers, s.seed, s.max_steps as u64);
+        // Mostly stretch moves, with differential-evolution moves that jump
+        // along the ensemble's own directions (helps with the strong
+        // period-eccentricity-phase correlations of partial orbits).
+        sampler.moves = MoveMixture::new(vec![
+            (Move::stretch(), 0.7),
+            (Move::differential_evolution(), 0.3),
+        ])?;
+        sampler.thin = s.thinning.max(1) as u64;
+        sampler.checkpoint = checkpoint;
+        sampler.convergence = Some(Convergence::default());
+        let burn_in_steps = (s.burn_in_fraction * s.max_steps as f64).round() as u64;
+        if n_temps > 1 {
+            sampler.tempering = Some(TemperingConfig {
+                n_temperatures: n_temps,
+                burn_in_steps: burn_in_steps.max(1),
+                ..TemperingConfig::default()
+            });
+        }
+        Ok(Self {
+            sampler,
+            burn_in_fraction: s.burn_in_fraction,
+            notes,
+        })
+    }
+
+    /// Whether the run is tempered.
+    pub fn tempered(&self) -> bool {
+        self.sampler.tempering.is_some()
+    }
+}
+
+/// Checkpoint every few seconds of wall time.
+pub fn checkpoint_every() -> Duration {
+    Duration::from_secs(5)
+}
