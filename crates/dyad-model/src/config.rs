@@ -495,13 +495,13 @@ fn read_data(s: &Section<'_>, base: &Path) -> Result<DataSettings, ModelError> {
         s.f64("catalogue_parallax_err_mas")?,
     ) {
         (Some(p), Some(e)) => {
-            if !(e > 0.0) {
+            if e <= 0.0 {
                 return Err(s.error(
                     "catalogue_parallax_err_mas",
                     format!("must be positive, got {e}"),
                 ));
             }
-            if !(p > 0.0) {
+            if p <= 0.0 {
                 return Err(s.error(
                     "catalogue_parallax_mas",
                     format!("must be positive, got {p}"),
@@ -551,8 +551,8 @@ const PRIOR_KEYS: &[&str] = &[
 fn read_priors(s: &Section<'_>) -> Result<PriorSettings, ModelError> {
     s.allow_only(PRIOR_KEYS)?;
     let period = match s.one_of("period_days", "period_years")? {
-        Some("a") => prior_at(&s, "period_days", 1.0, &POSITIVE)?,
-        Some(_) => prior_at(&s, "period_years", JULIAN_YEAR_DAYS, &POSITIVE)?,
+        Some("a") => prior_at(s, "period_days", 1.0, &POSITIVE)?,
+        Some(_) => prior_at(s, "period_years", JULIAN_YEAR_DAYS, &POSITIVE)?,
         None => None,
     };
     let inclination = match s.get("inclination_deg") {
@@ -563,7 +563,7 @@ fn read_priors(s: &Section<'_>) -> Result<PriorSettings, ModelError> {
                 format!("the only named inclination prior is \"isotropic\", got \"{v}\"; otherwise give a prior table in degrees"),
             ))
         }
-        Some(_) => prior_at(&s, "inclination_deg", DEG, &INCLINATION_DEG)?.map(InclinationPrior::Angle),
+        Some(_) => prior_at(s, "inclination_deg", DEG, &INCLINATION_DEG)?.map(InclinationPrior::Angle),
         None => None,
     };
     let mut instruments = BTreeMap::new();
@@ -582,17 +582,17 @@ fn read_priors(s: &Section<'_>) -> Result<PriorSettings, ModelError> {
     }
     Ok(PriorSettings {
         period,
-        eccentricity: prior_at(&s, "eccentricity", 1.0, &ECCENTRICITY)?,
-        omega: prior_at(&s, "periastron_argument_deg", DEG, &ANY)?,
+        eccentricity: prior_at(s, "eccentricity", 1.0, &ECCENTRICITY)?,
+        omega: prior_at(s, "periastron_argument_deg", DEG, &ANY)?,
         inclination,
-        node: prior_at(&s, "node_deg", DEG, &ANY)?,
-        total_mass: prior_at(&s, "total_mass_msun", 1.0, &POSITIVE)?,
-        parallax: prior_at(&s, "parallax_mas", 1.0, &POSITIVE)?,
-        mass_ratio: prior_at(&s, "mass_ratio", 1.0, &NON_NEGATIVE)?,
-        k1: prior_at(&s, "primary_semi_amplitude_kms", 1.0, &POSITIVE)?,
-        k2: prior_at(&s, "secondary_semi_amplitude_kms", 1.0, &POSITIVE)?,
-        offset: prior_at(&s, "offset_kms", 1.0, &ANY)?,
-        jitter: prior_at(&s, "jitter_kms", 1.0, &NON_NEGATIVE)?,
+        node: prior_at(s, "node_deg", DEG, &ANY)?,
+        total_mass: prior_at(s, "total_mass_msun", 1.0, &POSITIVE)?,
+        parallax: prior_at(s, "parallax_mas", 1.0, &POSITIVE)?,
+        mass_ratio: prior_at(s, "mass_ratio", 1.0, &NON_NEGATIVE)?,
+        k1: prior_at(s, "primary_semi_amplitude_kms", 1.0, &POSITIVE)?,
+        k2: prior_at(s, "secondary_semi_amplitude_kms", 1.0, &POSITIVE)?,
+        offset: prior_at(s, "offset_kms", 1.0, &ANY)?,
+        jitter: prior_at(s, "jitter_kms", 1.0, &NON_NEGATIVE)?,
         instruments,
     })
 }

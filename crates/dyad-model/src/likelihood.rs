@@ -26,7 +26,8 @@
 
 use std::f64::consts::{PI, TAU};
 
-use dyad_orbit::{laws, velocity, Orbit};
+use dyad_orbit::kepler::{EccentricAnomaly, KeplerSolver, LANES};
+use dyad_orbit::{laws, velocity, CampbellElements, ThieleInnes};
 
 use crate::config::RunConfig;
 use crate::data::{Dataset, RelativePosition, Star};
@@ -39,29 +40,45 @@ const LN_2PI: f64 = 1.837_877_066_409_345_5;
 /// What an astrometric epoch measured.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) enum Measured {
-    /// Separation (mas) and position angle (rad).
-    Polar { sep_mas: f64, pa_rad: f64 },
+    /// Separation (mas) and the sine and cosine of the position angle.
+    Polar {
+        sep_mas: f64,
+        sin_pa: f64,
+        cos_pa: f64,
+    },
     /// dRA* and dDec (mas).
     Cartesian { dra_mas: f64, ddec_mas: f64 },
 }
 
-/// One astrometric epoch ready for evaluation.
+/// One astrometric epoch ready for evaluation (its epoch is in
+/// `Model::astrometry_times`).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) struct AstrometryTerm {
-    pub t_jd: f64,
     pub measured: Measured,
     /// Inverse covariance (c11, c12, c22) of the residual pair.
     pub inv: [f64; 3],
 }
 
-/// One velocity ready for evaluation.
+/// One velocity ready for evaluation (its epoch is in `Model::velocity_times`).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) struct VelocityTerm {
-    pub t_jd: f64,
     pub rv_kms: f64,
     pub err_sq: f64,
-    pub star: Star,
+    /// ln(2 pi err^2), used when the jitter is zero.
+    pub ln_2pi_err_sq: f64,
     pub instrument: usize,
+    pub star: Star,
+}
+
+/// The velocities of one star from one instrument: they share an offset,
+/// a jitter and an amplitude, computed once per evaluation.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct VelocityGroup {
+    pub instrument: usize,
+    pub star: Star,
+    /// Range of this group in `velocities` and `velocity_times`.
+    pub start: usize,
+    pub end: usize,
 }
 
 /// Inverse of the 2x2 covariance of errors (s1, s2) with correlation c, and
@@ -103,8 +120,13 @@ pub fn wrap_angle(d: f64) -> f64 {
 pub struct Model {
     layout: ParameterLayout,
     dataset: Dataset,
-    pub(crate) astrometry: Vec<AstrometryTerm>,
-    pub(crate) velocities: Vec<VelocityTerm>,
+    astrometry: Vec<AstrometryTerm>,
+    /// Epochs of `astrometry`, contiguous for the batched orbit solver.
+    astrometry_times: Vec<f64>,
+    /// Velocities sorted by (instrument, star).
+    velocities: Vec<VelocityTerm>,
+    velocity_times: Vec<f64>,
+    velocity_groups: Vec<VelocityGroup>,
     /// Sum over epochs of -0.5 ln det(2 pi C).
     astrometry_ln_norm: f64,
 }
@@ -113,7 +135,8 @@ impl Model {
     /// Builds the model of a data set under the given priors.
     pub fn new(dataset: Dataset, priors: &ModelPriors) -> Result<Self, ModelError> {
         let layout = ParameterLayout::new(&dataset, priors)?;
-        let mut astrometry = Vec::with_capacity(dataset.astrometry.len());
+        let mut astrometry: Vec<AstrometryTerm> = Vec::with_capacity(dataset.astrometry.len());
+        let mut astrometry_times = Vec::with_capacity(dataset.astrometry.len());
         let mut astrometry_ln_norm = 0.0;
         for (n, epoch) in dataset.astrometry.iter().enumerate() {
             let (measured, s1, s2, c) = match epoch.position {
@@ -124,7 +147,11 @@ impl Model {
                     pa_err_rad,
                     corr,
                 } => (
-                    Measured::Polar { sep_mas, pa_rad },
+                    Measured::Polar {
+                        sep_mas,
+                        sin_pa: pa_rad.sin(),
+                        cos_pa: pa_rad.cos(),
+                    },
                     sep_err_mas,
                     pa_err_rad,
                     corr,
@@ -146,13 +173,20 @@ impl Model {
                 ModelError::InvalidModel(format!("astrometric epoch {}: {m}", n + 1))
             })?;
             astrometry_ln_norm -= 0.5 * ln_det;
-            astrometry.push(AstrometryTerm {
-                t_jd: epoch.t_jd,
-                measured,
-                inv,
-            });
+            astrometry.push(AstrometryTerm { measured, inv });
+            astrometry_times.push(epoch.t_jd);
         }
-        let mut velocities = Vec::with_capacity(dataset.velocities.len());
+        // Polar epochs first, then Cartesian: the inner loop then branches
+        // predictably (the sum does not depend on the order).
+        let mut order: Vec<usize> = (0..astrometry.len()).collect();
+        order.sort_by_key(|&i| {
+            (
+                matches!(astrometry[i].measured, Measured::Cartesian { .. }),
+                i,
+            )
+        });
+        let astrometry: Vec<AstrometryTerm> = order.iter().map(|&i| astrometry[i]).collect();
+        let astrometry_times: Vec<f64> = order.iter().map(|&i| astrometry_times[i]).collect();
         for (n, v) in dataset.velocities.iter().enumerate() {
             if !(v.rv_err_kms > 0.0 && v.rv_err_kms.is_finite())
                 || v.instrument >= dataset.instruments.len()
@@ -162,19 +196,49 @@ impl Model {
                     n + 1
                 )));
             }
+        }
+        // Group by (instrument, star), keeping file order within a group.
+        let star_rank = |s: Star| match s {
+            Star::Primary => 0,
+            Star::Secondary => 1,
+        };
+        let mut order: Vec<usize> = (0..dataset.velocities.len()).collect();
+        order.sort_by_key(|&i| {
+            let v = &dataset.velocities[i];
+            (v.instrument, star_rank(v.star), i)
+        });
+        let mut velocities = Vec::with_capacity(order.len());
+        let mut velocity_times = Vec::with_capacity(order.len());
+        let mut velocity_groups: Vec<VelocityGroup> = Vec::new();
+        for (k, &i) in order.iter().enumerate() {
+            let v = &dataset.velocities[i];
+            let err_sq = v.rv_err_kms * v.rv_err_kms;
             velocities.push(VelocityTerm {
-                t_jd: v.t_jd,
                 rv_kms: v.rv_kms,
-                err_sq: v.rv_err_kms * v.rv_err_kms,
-                star: v.star,
+                err_sq,
+                ln_2pi_err_sq: LN_2PI + err_sq.ln(),
                 instrument: v.instrument,
+                star: v.star,
             });
+            velocity_times.push(v.t_jd);
+            match velocity_groups.last_mut() {
+                Some(g) if g.instrument == v.instrument && g.star == v.star => g.end = k + 1,
+                _ => velocity_groups.push(VelocityGroup {
+                    instrument: v.instrument,
+                    star: v.star,
+                    start: k,
+                    end: k + 1,
+                }),
+            }
         }
         Ok(Self {
             layout,
             dataset,
             astrometry,
+            astrometry_times,
             velocities,
+            velocity_times,
+            velocity_groups,
             astrometry_ln_norm,
         })
     }
@@ -277,38 +341,105 @@ impl Model {
     }
 
     fn log_likelihood_of(&self, o: &OrbitalParameters, x: &[f64]) -> f64 {
-        let orbit = match Orbit::new(&o.campbell_elements()) {
-            Ok(orbit) => orbit,
-            Err(_) => return f64::NEG_INFINITY,
+        let Some(kin) = Kinematics::new(&o.campbell_elements()) else {
+            return f64::NEG_INFINITY;
         };
+        // Epochs are solved LANES at a time into a stack buffer (the batched
+        // solver of dyad-orbit; no allocation).
+        let mut anomalies = [EccentricAnomaly {
+            e_anom: 0.0,
+            sin_e: 0.0,
+            cos_e: 1.0,
+        }; LANES];
         let mut chi2 = 0.0;
-        for term in &self.astrometry {
-            let s = orbit.state(term.t_jd);
-            let (r1, r2) = match term.measured {
-                Measured::Polar { sep_mas, pa_rad } => {
-                    let sep = s.dra.hypot(s.ddec);
-                    let pa = s.dra.atan2(s.ddec);
-                    (sep_mas - sep, wrap_angle(pa_rad - pa))
-                }
-                Measured::Cartesian { dra_mas, ddec_mas } => (dra_mas - s.dra, ddec_mas - s.ddec),
-            };
-            let [c11, c12, c22] = term.inv;
-            chi2 += c11 * r1 * r1 + 2.0 * c12 * r1 * r2 + c22 * r2 * r2;
+        for (terms, times) in self
+            .astrometry
+            .chunks(LANES)
+            .zip(self.astrometry_times.chunks(LANES))
+        {
+            let anomalies = &mut anomalies[..times.len()];
+            kin.solve(times, anomalies);
+            for (term, ea) in terms.iter().zip(anomalies.iter()) {
+                let (dra, ddec) = kin.position(ea);
+                let (r1, r2) = match term.measured {
+                    Measured::Polar {
+                        sep_mas,
+                        sin_pa,
+                        cos_pa,
+                    } => {
+                        let sep = (dra * dra + ddec * ddec).sqrt();
+                        // theta_obs - theta_model in (-pi, pi] from the sine
+                        // and cosine of the difference (the model's are
+                        // dRA*/rho and dDec/rho; rho cancels in atan2).
+                        let d_pa =
+                            (sin_pa * ddec - cos_pa * dra).atan2(cos_pa * ddec + sin_pa * dra);
+                        (sep_mas - sep, d_pa)
+                    }
+                    Measured::Cartesian { dra_mas, ddec_mas } => (dra_mas - dra, ddec_mas - ddec),
+                };
+                let [c11, c12, c22] = term.inv;
+                chi2 += c11 * r1 * r1 + 2.0 * c12 * r1 * r2 + c22 * r2 * r2;
+            }
         }
         let mut ll = self.astrometry_ln_norm - 0.5 * chi2;
         if !self.velocities.is_empty() {
             let (c1, c2) = self.velocity_factors(o);
-            for term in &self.velocities {
-                let shape = orbit.state(term.t_jd).rv_shape;
-                let gamma = self.layout.offset_kms(x, term.instrument);
-                let jitter = self.layout.jitter_kms(x, term.instrument);
-                let model = match term.star {
-                    Star::Primary => gamma + c1 * shape,
-                    Star::Secondary => gamma + c2 * shape,
-                };
-                let var = term.err_sq + jitter * jitter;
-                let r = term.rv_kms - model;
-                ll -= 0.5 * (r * r / var + LN_2PI + var.ln());
+            let n_inst = self.layout.instrument_count();
+            if n_inst <= CACHED_INSTRUMENTS {
+                // One pass over all velocities (full solver lanes), with
+                // each instrument's offset and squared jitter computed once.
+                let mut gamma = [0.0; CACHED_INSTRUMENTS];
+                let mut jitter_sq = [0.0; CACHED_INSTRUMENTS];
+                for k in 0..n_inst {
+                    gamma[k] = self.layout.offset_kms(x, k);
+                    let s = self.layout.jitter_kms(x, k);
+                    jitter_sq[k] = s * s;
+                }
+                let mut memo = VarianceMemo::new();
+                let mut sum = 0.0;
+                for (terms, times) in self
+                    .velocities
+                    .chunks(LANES)
+                    .zip(self.velocity_times.chunks(LANES))
+                {
+                    let anomalies = &mut anomalies[..times.len()];
+                    kin.solve(times, anomalies);
+                    for (term, ea) in terms.iter().zip(anomalies.iter()) {
+                        let k = term.instrument;
+                        let amplitude = match term.star {
+                            Star::Primary => c1,
+                            Star::Secondary => c2,
+                        };
+                        let r = term.rv_kms - (gamma[k] + amplitude * kin.rv_shape(ea));
+                        let (inv_var, ln_norm) = memo.get(term, k, jitter_sq[k]);
+                        sum += r * r * inv_var + ln_norm;
+                    }
+                }
+                ll -= 0.5 * sum;
+            } else {
+                for g in &self.velocity_groups {
+                    let gamma = self.layout.offset_kms(x, g.instrument);
+                    let jitter = self.layout.jitter_kms(x, g.instrument);
+                    let jitter_sq = jitter * jitter;
+                    let amplitude = match g.star {
+                        Star::Primary => c1,
+                        Star::Secondary => c2,
+                    };
+                    let terms = &self.velocities[g.start..g.end];
+                    let times = &self.velocity_times[g.start..g.end];
+                    let mut memo = VarianceMemo::new();
+                    let mut sum = 0.0;
+                    for (terms, times) in terms.chunks(LANES).zip(times.chunks(LANES)) {
+                        let anomalies = &mut anomalies[..times.len()];
+                        kin.solve(times, anomalies);
+                        for (term, ea) in terms.iter().zip(anomalies.iter()) {
+                            let r = term.rv_kms - (gamma + amplitude * kin.rv_shape(ea));
+                            let (inv_var, ln_norm) = memo.get(term, g.instrument, jitter_sq);
+                            sum += r * r * inv_var + ln_norm;
+                        }
+                    }
+                    ll -= 0.5 * sum;
+                }
             }
         }
         if ll.is_nan() {
@@ -316,5 +447,115 @@ impl Model {
         } else {
             ll
         }
+    }
+}
+
+/// Instruments up to this number have their offsets and jitters cached on
+/// the stack for a single pass over all velocities.
+const CACHED_INSTRUMENTS: usize = 16;
+
+/// 1/(err^2 + s^2) and ln(2 pi (err^2 + s^2)), reused while consecutive
+/// velocities have the same error and instrument (common: one quoted
+/// precision per instrument); otherwise one division and one log per point.
+struct VarianceMemo {
+    err_sq: f64,
+    instrument: usize,
+    inv_var: f64,
+    ln_norm: f64,
+}
+
+impl VarianceMemo {
+    #[inline(always)]
+    fn new() -> Self {
+        Self {
+            err_sq: f64::NAN,
+            instrument: usize::MAX,
+            inv_var: 0.0,
+            ln_norm: 0.0,
+        }
+    }
+
+    #[inline(always)]
+    fn get(&mut self, term: &VelocityTerm, instrument: usize, jitter_sq: f64) -> (f64, f64) {
+        if term.err_sq != self.err_sq || instrument != self.instrument {
+            let var = term.err_sq + jitter_sq;
+            self.err_sq = term.err_sq;
+            self.instrument = instrument;
+            self.inv_var = 1.0 / var;
+            self.ln_norm = if jitter_sq == 0.0 {
+                term.ln_2pi_err_sq
+            } else {
+                LN_2PI + var.ln()
+            };
+        }
+        (self.inv_var, self.ln_norm)
+    }
+}
+
+/// The parts of an orbit the likelihood needs, evaluated without the
+/// pieces it does not (positions at velocity epochs and velocities at
+/// astrometric epochs). Same formulas as `dyad_orbit::Orbit` (DESIGN.md
+/// "Kinematics"): X = cos E - e, Y = sqrt(1 - e^2) sin E,
+/// dDec = A X + F Y, dRA* = B X + G Y, and the velocity shape
+/// cos(nu + omega) + e cos omega = (X cos w - Y sin w) / (1 - e cos E) + e cos w.
+struct Kinematics {
+    solver: KeplerSolver,
+    ti: ThieleInnes,
+    t_peri: f64,
+    inv_period: f64,
+    e: f64,
+    sqrt_1me2: f64,
+    cos_w: f64,
+    sin_w: f64,
+    e_cos_w: f64,
+}
+
+/// 1.5 * 2^52: adding and subtracting it rounds to the nearest integer.
+const ROUND_MAGIC: f64 = 6_755_399_441_055_744.0;
+
+impl Kinematics {
+    #[inline]
+    fn new(el: &CampbellElements) -> Option<Self> {
+        el.validate().ok()?;
+        let (sin_w, cos_w) = el.omega_rad.sin_cos();
+        Some(Self {
+            solver: KeplerSolver::new(el.e).ok()?,
+            ti: el.thiele_innes(),
+            t_peri: el.t_peri_jd,
+            inv_period: 1.0 / el.period_days,
+            e: el.e,
+            sqrt_1me2: ((1.0 - el.e) * (1.0 + el.e)).sqrt(),
+            cos_w,
+            sin_w,
+            e_cos_w: el.e * cos_w,
+        })
+    }
+
+    /// Eccentric anomalies at up to LANES epochs. The mean anomaly is
+    /// reduced on the phase (t - T)/P, where removing whole cycles is exact.
+    #[inline]
+    fn solve(&self, times: &[f64], out: &mut [EccentricAnomaly]) {
+        let mut m = [0.0; LANES];
+        let m = &mut m[..times.len()];
+        for (mi, &t) in m.iter_mut().zip(times) {
+            let phase = (t - self.t_peri) * self.inv_period;
+            let cycles = (phase + ROUND_MAGIC) - ROUND_MAGIC;
+            *mi = TAU * (phase - cycles);
+        }
+        self.solver.solve_many(m, out);
+    }
+
+    #[inline(always)]
+    fn position(&self, ea: &EccentricAnomaly) -> (f64, f64) {
+        let x = ea.cos_e - self.e;
+        let y = self.sqrt_1me2 * ea.sin_e;
+        (self.ti.b * x + self.ti.g * y, self.ti.a * x + self.ti.f * y)
+    }
+
+    #[inline(always)]
+    fn rv_shape(&self, ea: &EccentricAnomaly) -> f64 {
+        let x = ea.cos_e - self.e;
+        let y = self.sqrt_1me2 * ea.sin_e;
+        (x * self.cos_w - y * self.sin_w) / (1.0 - self.e * ea.cos_e) + self.e_cos_w
     }
 }

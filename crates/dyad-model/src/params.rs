@@ -369,6 +369,9 @@ struct WrappedAngle {
     /// the support (bounded supports), or +-6 periods about the mean.
     k_min: i32,
     k_max: i32,
+    /// `Some(ln(1/period))` when the wrapped density is constant: a uniform
+    /// prior over a whole number of periods (the usual case).
+    constant: Option<f64>,
 }
 
 impl WrappedAngle {
@@ -388,17 +391,28 @@ impl WrappedAngle {
         // Guard against absurd supports (e.g. +-1e9 degrees).
         let k_min = k_min.max(-64);
         let k_max = k_max.min(64).max(k_min);
+        let constant = match prior.prior().shape() {
+            PriorShape::Uniform { min, max } => {
+                let turns = (max - min) * prior.scale() / period;
+                ((turns - turns.round()).abs() < 1e-9 && turns.round() >= 1.0).then(|| -period.ln())
+            }
+            _ => None,
+        };
         Self {
             prior,
             period,
             k_min,
             k_max,
+            constant,
         }
     }
 
     /// ln of the wrapped density at `theta` in [0, period).
     #[inline]
     fn ln_pdf(&self, theta: f64) -> f64 {
+        if let Some(c) = self.constant {
+            return c;
+        }
         // log-sum-exp without allocation: two passes over the few k.
         let mut best = f64::NEG_INFINITY;
         for k in self.k_min..=self.k_max {
@@ -653,7 +667,7 @@ impl ParameterLayout {
         // With e fixed at exactly 0 omega has no meaning: hold it at 0.
         let omega_fixed = match (e_fixed, priors.omega_rad.fixed_value()) {
             (_, Some(w)) => Some(w),
-            (Some(e), None) if e == 0.0 => Some(0.0),
+            (Some(0.0), None) => Some(0.0),
             _ => None,
         };
         let eccentricity = match (e_fixed, omega_fixed) {
@@ -834,7 +848,7 @@ impl ParameterLayout {
             EccentricityBlock::OmegaOnly(e, pair) => (e, pair.angle(x)),
             EccentricityBlock::Fixed(e, w) => (e, reduce_angle(w, TAU)),
         };
-        if !(period_days > 0.0 && period_days.is_finite()) || !(0.0..1.0).contains(&eccentricity) {
+        if period_days <= 0.0 || !period_days.is_finite() || !(0.0..1.0).contains(&eccentricity) {
             return None;
         }
         let mean_longitude_rad = self.phase.angle(x);

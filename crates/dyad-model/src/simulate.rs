@@ -169,7 +169,7 @@ fn epochs(s: &Section<'_>, scale: TimeScale) -> Result<Vec<f64>, ModelError> {
             if count > 1_000_000 {
                 return Err(s.error("count", "at most 1000000 epochs"));
             }
-            if count > 1 && !(last > first) {
+            if count > 1 && last <= first {
                 return Err(s.error(
                     "last",
                     format!("must be after 'first' ({first}), got {last}"),
@@ -272,7 +272,7 @@ fn read_system(s: &Section<'_>) -> Result<TrueSystem, ModelError> {
     let (a_mas, mass_ratio) = match (masses, axis) {
         ((Some(m1), Some(m2)), None) => {
             let m1 = positive(s, "mass_primary_msun", m1)?;
-            if !(m2 >= 0.0) {
+            if m2 < 0.0 {
                 return Err(s.error("mass_secondary_msun", format!("must be >= 0, got {m2}")));
             }
             if s.get("mass_ratio").is_some() {
@@ -469,7 +469,7 @@ fn read_velocities(s: &Section<'_>, base: &Path) -> Result<VelocityPlan, ModelEr
             }
         };
         let jitter_kms = one.f64("jitter_kms")?.unwrap_or(0.0);
-        if !(jitter_kms >= 0.0) {
+        if jitter_kms < 0.0 {
             return Err(one.error("jitter_kms", "must be >= 0"));
         }
         instruments.push(InstrumentPlan {

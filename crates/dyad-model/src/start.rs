@@ -173,7 +173,7 @@ fn fit_thiele_innes(model: &Model, period: f64, e: f64, t_peri: f64) -> Option<T
     }
     let solve2 = |n: [f64; 3], r: [f64; 2]| -> Option<(f64, f64)> {
         let det = n[0] * n[2] - n[1] * n[1];
-        if !(det.abs() > 1e-12 * (n[0] * n[2]).abs()) || det == 0.0 {
+        if det == 0.0 || det.abs() <= 1e-12 * (n[0] * n[2]).abs() {
             return None;
         }
         Some((
@@ -464,11 +464,12 @@ pub fn nelder_mead(
                 simplex[n].clone_from(&trial2);
                 values[n] = fc;
             } else {
-                for i in 1..=n {
-                    for j in 0..n {
-                        simplex[i][j] = simplex[0][j] + 0.5 * (simplex[i][j] - simplex[0][j]);
+                let (best, rest) = simplex.split_at_mut(1);
+                for (vertex, value) in rest.iter_mut().zip(values[1..].iter_mut()) {
+                    for (v, b) in vertex.iter_mut().zip(&best[0]) {
+                        *v = b + 0.5 * (*v - b);
                     }
-                    values[i] = f(&simplex[i]);
+                    *value = f(vertex);
                 }
                 evaluations += n;
             }

@@ -255,7 +255,16 @@ fn mass_parallax_ratio_and_instrument_terms() {
         p.jitter_kms = vec![ScaledPrior::internal(jitter); 2];
         p.offset_kms = vec![ScaledPrior::internal(offset); 2];
     });
-    let checks: [(&str, &str, (f64, f64), f64, fn(f64) -> f64, f64); 5] = [
+    // (coordinate, prior term, integration range, threshold, map to physics, CDF there)
+    type Check = (
+        &'static str,
+        &'static str,
+        (f64, f64),
+        f64,
+        fn(f64) -> f64,
+        f64,
+    );
+    let checks: [Check; 5] = [
         (
             "ln_total_mass_msun",
             "total mass",
