@@ -6,5 +6,6 @@ mod common;
 mod config_errors;
 mod jacobians;
 mod likelihood;
+mod modes;
 mod simulate;
 mod start;
