@@ -49,8 +49,14 @@ pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
     let p = layout.priors();
     let mut lines = vec![
         ("period".to_owned(), describe_prior(&p.period_days, "d")),
-        ("eccentricity".to_owned(), describe_prior(&p.eccentricity, "")),
-        ("omega (secondary)".to_owned(), describe_prior(&p.omega_rad, "rad")),
+        (
+            "eccentricity".to_owned(),
+            describe_prior(&p.eccentricity, ""),
+        ),
+        (
+            "omega (secondary)".to_owned(),
+            describe_prior(&p.omega_rad, "rad"),
+        ),
     ];
     let mode = model.mode();
     if mode != FitMode::VelocitiesOnly {
@@ -59,9 +65,18 @@ pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
             InclinationPrior::Angle(a) => describe_prior(a, "rad"),
         };
         lines.push(("inclination".to_owned(), inc));
-        lines.push(("node (Omega)".to_owned(), describe_prior(&p.node_rad, "rad")));
-        lines.push(("total mass".to_owned(), describe_prior(&p.total_mass_msun, "M_sun")));
-        lines.push(("parallax".to_owned(), describe_prior(&p.parallax_mas, "mas")));
+        lines.push((
+            "node (Omega)".to_owned(),
+            describe_prior(&p.node_rad, "rad"),
+        ));
+        lines.push((
+            "total mass".to_owned(),
+            describe_prior(&p.total_mass_msun, "M_sun"),
+        ));
+        lines.push((
+            "parallax".to_owned(),
+            describe_prior(&p.parallax_mas, "mas"),
+        ));
     }
     if mode == FitMode::Joint {
         lines.push(("mass ratio q".to_owned(), describe_prior(&p.mass_ratio, "")));
@@ -75,8 +90,14 @@ pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
         }
     }
     for (k, name) in model.dataset().instruments.iter().enumerate() {
-        lines.push((format!("offset [{name}]"), describe_prior(&p.offset_kms[k], "km/s")));
-        lines.push((format!("jitter [{name}]"), describe_prior(&p.jitter_kms[k], "km/s")));
+        lines.push((
+            format!("offset [{name}]"),
+            describe_prior(&p.offset_kms[k], "km/s"),
+        ));
+        lines.push((
+            format!("jitter [{name}]"),
+            describe_prior(&p.jitter_kms[k], "km/s"),
+        ));
     }
     lines
 }
@@ -124,6 +145,9 @@ pub fn describe(config: &RunConfig, model: &Model, plan: &SamplingPlan) -> Strin
     for note in &plan.notes {
         out.push_str(&format!("note: {note}\n"));
     }
-    out.push_str(&format!("output folder: {}", config.output.folder.display()));
+    out.push_str(&format!(
+        "output folder: {}",
+        config.output.folder.display()
+    ));
     out
 }

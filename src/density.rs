@@ -32,11 +32,6 @@ impl<'a> Posterior<'a> {
             ln_period_window: Some((index, lo_days.ln(), hi_days.ln())),
         })
     }
-
-    /// The model.
-    pub fn model(&self) -> &Model {
-        self.model
-    }
 }
 
 impl LogDensity for Posterior<'_> {

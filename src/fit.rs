@@ -14,8 +14,7 @@ use dyad_model::likelihood::Model;
 use dyad_model::start::{find_starting_points, StartSettings};
 use dyad_sampler::evidence::estimate_evidence;
 use dyad_sampler::{
-    CheckpointConfig, FileSink, LogDensity, RunControl, RunDiagnostics, RunResult, RunStatus,
-    Start,
+    CheckpointConfig, FileSink, LogDensity, RunControl, RunDiagnostics, RunResult, RunStatus, Start,
 };
 
 use crate::density::Posterior;
@@ -90,7 +89,8 @@ impl Outcome {
                 files.folder.display()
             )
         })?;
-        serde_json::from_str(&text).with_context(|| format!("{}: not a valid outcome record", path.display()))
+        serde_json::from_str(&text)
+            .with_context(|| format!("{}: not a valid outcome record", path.display()))
     }
 
     fn write(&self, files: &RunFiles) -> Result<()> {
@@ -115,7 +115,11 @@ fn ctrl_c_flag() -> Arc<AtomicBool> {
 /// The starting ensemble: a small ball around the best point the search
 /// found, or (tempered runs) walkers spread round-robin over every distinct
 /// mode it found.
-fn starting_ensemble(model: &Model, config: &RunConfig, plan: &SamplingPlan) -> Result<Start<'static>> {
+pub fn starting_ensemble(
+    model: &Model,
+    config: &RunConfig,
+    plan: &SamplingPlan,
+) -> Result<Start<'static>> {
     let settings = StartSettings {
         seed: config.sampler.seed,
         ..StartSettings::default()
@@ -166,7 +170,11 @@ fn ball_scale(model: &Model, x: &[f64]) -> Vec<f64> {
             let fm = model.log_posterior(&y);
             y[i] = x[i];
             let d2 = (fp - 2.0 * f0 + fm) / (h * h);
-            let width = if d2.is_finite() && d2 < 0.0 { 1.0 / (-d2).sqrt() } else { 1e-3 };
+            let width = if d2.is_finite() && d2 < 0.0 {
+                1.0 / (-d2).sqrt()
+            } else {
+                1e-3
+            };
             (0.1 * width).clamp(1e-9, 0.1)
         })
         .collect()
@@ -194,27 +202,62 @@ fn run_sampler(
     Ok(result?)
 }
 
+/// Makes (or, when asked, reuses) a run folder and records what the run is
+/// made from: a verbatim copy of the configuration and data checksums.
+pub fn open_run_folder(
+    folder: &Path,
+    config: &RunConfig,
+    config_text: &str,
+    overwrite: bool,
+) -> Result<RunFiles> {
+    dyad_report::prepare_run_folder(folder, overwrite)
+        .with_context(|| format!("preparing the run folder {}", folder.display()))?;
+    let files = RunFiles::new(folder);
+    // A fresh run in a reused folder: remove the previous run's outputs so
+    // that nothing stale can be mistaken for this run's.
+    for stale in [
+        files.outcome(),
+        files.checkpoint(),
+        files.chain(),
+        files.window(),
+    ] {
+        if stale.exists() {
+            fs::remove_file(&stale).with_context(|| format!("removing {}", stale.display()))?;
+        }
+    }
+    let provenance = Provenance::record(config, config_text)?;
+    write_text(&files.config_copy(), config_text)?;
+    write_text(
+        &files.provenance(),
+        &serde_json::to_string_pretty(&provenance)?,
+    )?;
+    Ok(files)
+}
+
+/// Samples `density` from a fresh start into the run folder.
+pub fn sample_fresh(
+    files: &RunFiles,
+    density: &Posterior<'_>,
+    plan: &SamplingPlan,
+    start: &Start<'_>,
+    quiet: bool,
+) -> Result<RunResult> {
+    let dim = density.dim();
+    let mut sink = FileSink::create_samples(files.chain(), dim, plan.sampler.n_walkers)?;
+    run_sampler(density, plan, &mut sink, Some(start), quiet)
+}
+
 /// `dyad fit CONFIG`.
 pub fn fit(config_path: &Path, options: &FitOptions) -> Result<()> {
     let config_text = fs::read_to_string(config_path)
         .with_context(|| format!("reading {}", config_path.display()))?;
     let config = RunConfig::from_toml_str(&config_text, config_path)?;
     let model = Model::from_config(&config)?;
-    let folder = options.output.clone().unwrap_or_else(|| config.output.folder.clone());
-    dyad_report::prepare_run_folder(&folder, options.overwrite)
-        .with_context(|| format!("preparing the run folder {}", folder.display()))?;
-    let files = RunFiles::new(&folder);
-    // A fresh run in a reused folder: remove the previous run's outputs so
-    // that nothing stale can be mistaken for this run's.
-    for stale in [files.outcome(), files.checkpoint(), files.chain()] {
-        if stale.exists() {
-            fs::remove_file(&stale).with_context(|| format!("removing {}", stale.display()))?;
-        }
-    }
-    let provenance = Provenance::record(&config, &config_text)?;
-    write_text(&files.config_copy(), &config_text)?;
-    write_text(&files.provenance(), &serde_json::to_string_pretty(&provenance)?)?;
-
+    let folder = options
+        .output
+        .clone()
+        .unwrap_or_else(|| config.output.folder.clone());
+    let files = open_run_folder(&folder, &config, &config_text, options.overwrite)?;
     let plan = SamplingPlan::new(&config, &model, Some(checkpoint_config(&files)))?;
     if !options.quiet {
         eprintln!("{}", crate::check::describe(&config, &model, &plan));
@@ -222,8 +265,7 @@ pub fn fit(config_path: &Path, options: &FitOptions) -> Result<()> {
     }
     let start = starting_ensemble(&model, &config, &plan)?;
     let density = Posterior::new(&model);
-    let mut sink = FileSink::create_samples(files.chain(), model.dim(), plan.sampler.n_walkers)?;
-    let result = run_sampler(&density, &plan, &mut sink, Some(&start), options.quiet)?;
+    let result = sample_fresh(&files, &density, &plan, &start, options.quiet)?;
     finish(&files, &config, &model, &plan, &result, options.quiet)
 }
 
@@ -249,17 +291,24 @@ pub fn resume(folder: &Path, max_steps: Option<u64>, quiet: bool) -> Result<()> 
     if !quiet {
         eprintln!("resuming at step {done} of {}", plan.sampler.max_steps);
     }
-    let density = Posterior::new(&model);
+    // A run restricted to a period window (made by `dyad periods`) resumes
+    // with the same restriction.
+    let density = match crate::run_folder::read_window(&run.files)? {
+        Some((lo, hi)) => Posterior::in_period_window(&model, lo, hi)
+            .context("the run's period window is not valid for this model")?,
+        None => Posterior::new(&model),
+    };
     let mut sink = FileSink::open(run.files.chain())?;
     let result = run_sampler(&density, &plan, &mut sink, None, quiet)?;
     finish(&run.files, &run.config, &model, &plan, &result, quiet)
 }
 
-fn checkpoint_config(files: &RunFiles) -> CheckpointConfig {
+pub fn checkpoint_config(files: &RunFiles) -> CheckpointConfig {
     CheckpointConfig::new(files.checkpoint(), checkpoint_every())
 }
 
-fn finish(
+/// Records how the run ended and, unless it was stopped, writes the report.
+pub fn finish(
     files: &RunFiles,
     config: &RunConfig,
     model: &Model,

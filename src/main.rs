@@ -9,8 +9,10 @@
 mod check;
 mod density;
 mod fit;
+mod periods;
 mod plan;
 mod posterior;
+mod predict;
 mod progress;
 mod run_folder;
 
@@ -70,6 +72,33 @@ enum Command {
         /// The run configuration.
         config: PathBuf,
     },
+    /// Compare period windows by evidence: a tempered run per window.
+    Periods {
+        /// The run configuration (windows: [sampler] period_windows_days or
+        /// period_windows_years; none: found from a first tempered run).
+        config: PathBuf,
+        /// Folder for the comparison (default: the [output] folder + "-periods").
+        #[arg(long)]
+        output: Option<PathBuf>,
+        /// Reuse a folder that already holds files.
+        #[arg(long)]
+        overwrite: bool,
+        /// No progress bars.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Where the companion will be: posterior separation and position angle
+    /// at given epochs, from a finished run.
+    Predict {
+        /// The run folder.
+        run: PathBuf,
+        /// Epochs, as Julian years (e.g. 2027.5) unless --scale says otherwise.
+        #[arg(required = true, num_args = 1..)]
+        epochs: Vec<f64>,
+        /// Time scale of the epochs: jyear, byear, jd or mjd.
+        #[arg(long, default_value = "jyear")]
+        scale: String,
+    },
     /// Write invented measurements of a binary with known elements, as
     /// described by a scenario file (see demo-data/README.md).
     Simulate {
@@ -109,6 +138,20 @@ fn run(cli: Cli) -> Result<()> {
         } => fit::resume(&run, max_steps, quiet),
         Command::Report { run } => posterior::report(&run),
         Command::Check { config } => check::check(&config),
+        Command::Periods {
+            config,
+            output,
+            overwrite,
+            quiet,
+        } => periods::periods(
+            &config,
+            &periods::PeriodOptions {
+                output,
+                overwrite,
+                quiet,
+            },
+        ),
+        Command::Predict { run, epochs, scale } => predict::predict(&run, &epochs, &scale),
         Command::Simulate {
             scenario,
             overwrite,

@@ -17,7 +17,7 @@ use dyad_sampler::{CheckpointConfig, Convergence, Move, MoveMixture, TemperingCo
 pub const SPARSE_ASTROMETRY_EPOCHS: usize = 10;
 
 /// Temperatures used when tempering is automatic.
-pub const AUTO_TEMPERATURES: usize = 8;
+pub const AUTO_TEMPERATURES: usize = 16;
 
 /// The sampler settings of a run, and why they were chosen.
 pub struct SamplingPlan {
@@ -98,6 +98,18 @@ impl SamplingPlan {
             burn_in_fraction: s.burn_in_fraction,
             notes,
         })
+    }
+
+    /// Tempers the run (with the automatic number of temperatures) if the
+    /// configuration did not ask for a number: evidence needs a ladder.
+    pub fn ensure_tempering(&mut self, burn_in_steps: u64) {
+        if self.sampler.tempering.is_none() {
+            self.sampler.tempering = Some(TemperingConfig {
+                n_temperatures: AUTO_TEMPERATURES,
+                burn_in_steps: burn_in_steps.max(1),
+                ..TemperingConfig::default()
+            });
+        }
     }
 
     /// Whether the run is tempered.

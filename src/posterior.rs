@@ -67,9 +67,15 @@ fn info_for(name: &str, unit: &str, mode: FitMode) -> ParameterInfo {
         u => u,
     };
     match name {
-        "omega_secondary_deg" | "omega_primary_deg" => ParameterInfo::angle(name, unit, label, 360.0),
+        "omega_secondary_deg" | "omega_primary_deg" => {
+            ParameterInfo::angle(name, unit, label, 360.0)
+        }
         "node_deg" => {
-            let period = if mode == FitMode::AstrometryOnly { 180.0 } else { 360.0 };
+            let period = if mode == FitMode::AstrometryOnly {
+                180.0
+            } else {
+                360.0
+            };
             ParameterInfo::angle(name, unit, label, period)
         }
         _ => ParameterInfo::linear(name, unit, label),
@@ -145,7 +151,9 @@ pub struct PeriodMode {
 /// histogram in ln P, so that a multimodal posterior is reported as such
 /// rather than averaged.
 pub fn period_modes(draws: &PosteriorDraws) -> Vec<PeriodMode> {
-    let Some(ip) = draws.index_of("period_days") else { return Vec::new() };
+    let Some(ip) = draws.index_of("period_days") else {
+        return Vec::new();
+    };
     let im = draws.index_of("total_mass_msun");
     let n = draws.n_draws();
     let mut pairs: Vec<(f64, f64)> = (0..n)
@@ -210,8 +218,11 @@ pub fn period_modes(draws: &PosteriorDraws) -> Vec<PeriodMode> {
             };
             let mut periods: Vec<f64> = members.iter().map(|(l, _)| l.exp()).collect();
             let range_days = [periods[0], periods[periods.len() - 1]];
-            let mut masses: Vec<f64> =
-                members.iter().map(|(_, m)| *m).filter(|m| m.is_finite()).collect();
+            let mut masses: Vec<f64> = members
+                .iter()
+                .map(|(_, m)| *m)
+                .filter(|m| m.is_finite())
+                .collect();
             Some(PeriodMode {
                 weight,
                 period_days: median(&mut periods),
@@ -223,13 +234,22 @@ pub fn period_modes(draws: &PosteriorDraws) -> Vec<PeriodMode> {
 }
 
 /// The statement of what the posterior depends on, for every report.
-fn metadata(config: &RunConfig, model: &Model, outcome: &Outcome, modes: &[PeriodMode]) -> RunMetadata {
+fn metadata(
+    config: &RunConfig,
+    model: &Model,
+    outcome: &Outcome,
+    modes: &[PeriodMode],
+) -> RunMetadata {
     let data = model.dataset();
-    let mut entries = vec![
-        ("configuration".to_owned(), config.file.display().to_string()),
-    ];
+    let mut entries = vec![(
+        "configuration".to_owned(),
+        config.file.display().to_string(),
+    )];
     if let Some(a) = &config.data.astrometry {
-        entries.push(("astrometry".to_owned(), format!("{} ({} epochs)", a.display(), data.astrometry.len())));
+        entries.push((
+            "astrometry".to_owned(),
+            format!("{} ({} epochs)", a.display(), data.astrometry.len()),
+        ));
     }
     for v in &config.data.velocities {
         entries.push(("velocities".to_owned(), v.display().to_string()));
@@ -259,7 +279,10 @@ fn metadata(config: &RunConfig, model: &Model, outcome: &Outcome, modes: &[Perio
         ),
     ));
     if outcome.betas.len() > 1 {
-        entries.push(("tempering".to_owned(), format!("{} temperatures", outcome.betas.len())));
+        entries.push((
+            "tempering".to_owned(),
+            format!("{} temperatures", outcome.betas.len()),
+        ));
     }
     if let Some(ev) = &outcome.evidence {
         let get = |k: &str, f: &str| ev[k][f].as_f64().unwrap_or(f64::NAN);
@@ -277,7 +300,9 @@ fn metadata(config: &RunConfig, model: &Model, outcome: &Outcome, modes: &[Perio
     }
     if modes.len() > 1 {
         for (k, m) in modes.iter().enumerate() {
-            let mass = m.total_mass_msun.map_or_else(String::new, |v| format!(", median M1+M2 {v:.3} M_sun"));
+            let mass = m
+                .total_mass_msun
+                .map_or_else(String::new, |v| format!(", median M1+M2 {v:.3} M_sun"));
             entries.push((
                 format!("period mode {}", k + 1),
                 format!(
@@ -319,7 +344,11 @@ fn physical_only(summary: &PosteriorSummary) -> PosteriorSummary {
     }
 }
 
-fn diagnostics_document(model: &Model, outcome: &Outcome, modes: &[PeriodMode]) -> serde_json::Value {
+fn diagnostics_document(
+    model: &Model,
+    outcome: &Outcome,
+    modes: &[PeriodMode],
+) -> serde_json::Value {
     let d = &outcome.diagnostics;
     let per_parameter: Vec<serde_json::Value> = model
         .parameter_names()
@@ -370,7 +399,10 @@ pub fn write_report(
     dyad_report::write_markdown_summary(&folder.join("summary.md"), &meta, &physical)?;
     dyad_report::write_json_summary(&folder.join("summary.json"), &meta, &summary, &diagnostics)?;
     dyad_report::write_samples_csv(&folder.join("samples.csv"), &draws.table)?;
-    write_text(&folder.join("diagnostics.json"), &serde_json::to_string_pretty(&diagnostics)?)?;
+    write_text(
+        &folder.join("diagnostics.json"),
+        &serde_json::to_string_pretty(&diagnostics)?,
+    )?;
     let plots = files.plots();
     fs::create_dir_all(&plots).with_context(|| format!("creating {}", plots.display()))?;
     write_plots(files, model, &draws, &summary)?;
@@ -385,13 +417,22 @@ fn map_point<'a>(draws: &'a Draws, summary: &PosteriorSummary, dim: usize) -> &'
     &draws.sampled[summary.map_draw * dim..(summary.map_draw + 1) * dim]
 }
 
-fn write_plots(files: &RunFiles, model: &Model, draws: &Draws, summary: &PosteriorSummary) -> Result<()> {
+fn write_plots(
+    files: &RunFiles,
+    model: &Model,
+    draws: &Draws,
+    summary: &PosteriorSummary,
+) -> Result<()> {
     let plots = files.plots();
     let table = &draws.table;
     let dim = model.dim();
     let map_x = map_point(draws, summary, dim);
     let present = |names: &[&'static str]| -> Vec<&'static str> {
-        names.iter().copied().filter(|n| table.index_of(n).is_some()).collect()
+        names
+            .iter()
+            .copied()
+            .filter(|n| table.index_of(n).is_some())
+            .collect()
     };
     let corner = match model.mode() {
         FitMode::Joint => present(&[
@@ -420,7 +461,12 @@ fn write_plots(files: &RunFiles, model: &Model, draws: &Draws, summary: &Posteri
             "m2_sin3i_msun",
         ]),
     };
-    dyad_report::plot_corner(&plots.join("corner"), "Posterior of the main parameters", table, &corner)?;
+    dyad_report::plot_corner(
+        &plots.join("corner"),
+        "Posterior of the main parameters",
+        table,
+        &corner,
+    )?;
 
     let panels: Vec<DistributionPanel> = present(&[
         "mass_primary_msun",
@@ -461,7 +507,13 @@ fn write_plots(files: &RunFiles, model: &Model, draws: &Draws, summary: &Posteri
 /// dRA* = rho sin theta, dDec = rho cos theta).
 pub fn sky_measurement(p: &RelativePosition) -> SkyMeasurement {
     match *p {
-        RelativePosition::Polar { sep_mas, sep_err_mas, pa_rad, pa_err_rad, corr } => {
+        RelativePosition::Polar {
+            sep_mas,
+            sep_err_mas,
+            pa_rad,
+            pa_err_rad,
+            corr,
+        } => {
             let (s, c) = pa_rad.sin_cos();
             // Jacobian of (dRA*, dDec) with respect to (rho, theta).
             let j = [[s, sep_mas * c], [c, -sep_mas * s]];
@@ -478,14 +530,28 @@ pub fn sky_measurement(p: &RelativePosition) -> SkyMeasurement {
                         .sum();
                 }
             }
-            SkyMeasurement { dra: sep_mas * s, ddec: sep_mas * c, cov, label: String::new() }
+            SkyMeasurement {
+                dra: sep_mas * s,
+                ddec: sep_mas * c,
+                cov,
+                label: String::new(),
+            }
         }
-        RelativePosition::Cartesian { dra_mas, ddec_mas, dra_err_mas, ddec_err_mas, corr } => {
+        RelativePosition::Cartesian {
+            dra_mas,
+            ddec_mas,
+            dra_err_mas,
+            ddec_err_mas,
+            corr,
+        } => {
             let off = corr * dra_err_mas * ddec_err_mas;
             SkyMeasurement {
                 dra: dra_mas,
                 ddec: ddec_mas,
-                cov: [[dra_err_mas * dra_err_mas, off], [off, ddec_err_mas * ddec_err_mas]],
+                cov: [
+                    [dra_err_mas * dra_err_mas, off],
+                    [off, ddec_err_mas * ddec_err_mas],
+                ],
                 label: String::new(),
             }
         }
@@ -518,7 +584,12 @@ fn sky_input(model: &Model, draws: &Draws, map_x: &[f64]) -> SkyPlotInput {
         .collect();
     SkyPlotInput {
         title: "Relative orbit on the sky".to_owned(),
-        measurements: model.dataset().astrometry.iter().map(|e| sky_measurement(&e.position)).collect(),
+        measurements: model
+            .dataset()
+            .astrometry
+            .iter()
+            .map(|e| sky_measurement(&e.position))
+            .collect(),
         tracks,
         best_track: orbit_track(model, map_x, 480),
         predictions: Vec::new(),

@@ -16,10 +16,9 @@ impl ProgressBar {
             return Self { bar: None };
         }
         let bar = indicatif::ProgressBar::new(max_steps);
-        let style = indicatif::ProgressStyle::with_template(
-            "{bar:30.cyan/blue} {pos}/{len} steps  {msg}",
-        )
-        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
+        let style =
+            indicatif::ProgressStyle::with_template("{bar:30.cyan/blue} {pos}/{len} steps  {msg}")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
         bar.set_style(style);
         Self { bar: Some(bar) }
     }
@@ -38,7 +37,11 @@ impl ProgressBar {
         let eta = p.eta.map_or_else(String::new, |d| {
             format!("  left: {}", indicatif::HumanDuration(d))
         });
-        let ladder = if p.ladder_frozen { "" } else { "  tuning temperatures" };
+        let ladder = if p.ladder_frozen {
+            ""
+        } else {
+            "  tuning temperatures"
+        };
         bar.set_message(format!(
             "accept: {:.2}  {tau}{target}{eta}{ladder}",
             p.acceptance

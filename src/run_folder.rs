@@ -44,6 +44,10 @@ impl RunFiles {
     pub fn outcome(&self) -> PathBuf {
         self.folder.join("outcome.json")
     }
+    /// The period window a run was restricted to (`dyad periods`).
+    pub fn window(&self) -> PathBuf {
+        self.folder.join("period-window.json")
+    }
     /// Plots folder.
     pub fn plots(&self) -> PathBuf {
         self.folder.join("plots")
@@ -101,7 +105,8 @@ impl Provenance {
         let data = data_files(config)
             .into_iter()
             .map(|p| {
-                let path = fs::canonicalize(&p).with_context(|| format!("resolving {}", p.display()))?;
+                let path =
+                    fs::canonicalize(&p).with_context(|| format!("resolving {}", p.display()))?;
                 Ok(FileChecksum {
                     sha256: sha256_of(&path)?,
                     path,
@@ -123,10 +128,6 @@ pub struct ExistingRun {
     pub files: RunFiles,
     /// The configuration the run was made with.
     pub config: RunConfig,
-    /// Its verbatim text.
-    pub config_text: String,
-    /// The provenance record.
-    pub provenance: Provenance,
 }
 
 impl ExistingRun {
@@ -141,17 +142,29 @@ impl ExistingRun {
         }
         let text = fs::read_to_string(files.provenance())
             .with_context(|| format!("reading {}", files.provenance().display()))?;
-        let provenance: Provenance = serde_json::from_str(&text)
-            .with_context(|| format!("{}: not a valid provenance record", files.provenance().display()))?;
+        let provenance: Provenance = serde_json::from_str(&text).with_context(|| {
+            format!(
+                "{}: not a valid provenance record",
+                files.provenance().display()
+            )
+        })?;
         let config_text = fs::read_to_string(files.config_copy())
             .with_context(|| format!("reading {}", files.config_copy().display()))?;
         // Parse the copy as if it stood where the original did, so that its
         // relative data paths resolve as they did when the run started.
-        let config = RunConfig::from_toml_str(&config_text, &provenance.config_path)
-            .with_context(|| format!("reading the configuration copy {}", files.config_copy().display()))?;
+        let config =
+            RunConfig::from_toml_str(&config_text, &provenance.config_path).with_context(|| {
+                format!(
+                    "reading the configuration copy {}",
+                    files.config_copy().display()
+                )
+            })?;
         for f in &provenance.data {
             let now = sha256_of(&f.path).with_context(|| {
-                format!("the run's data file {} is no longer readable", f.path.display())
+                format!(
+                    "the run's data file {} is no longer readable",
+                    f.path.display()
+                )
             })?;
             if now != f.sha256 {
                 bail!(
@@ -161,12 +174,7 @@ impl ExistingRun {
                 );
             }
         }
-        Ok(Self {
-            files,
-            config,
-            config_text,
-            provenance,
-        })
+        Ok(Self { files, config })
     }
 }
 
@@ -177,4 +185,31 @@ pub fn write_text(path: &Path, text: &str) -> Result<()> {
             .map_err(|e| dyad_report::ReportError::io(path, e))
     })
     .with_context(|| format!("writing {}", path.display()))
+}
+
+/// Records that a run samples only periods in `[lo, hi]` days.
+pub fn write_window(files: &RunFiles, lo_days: f64, hi_days: f64) -> Result<()> {
+    let text = serde_json::to_string_pretty(&serde_json::json!({
+        "period_min_days": lo_days,
+        "period_max_days": hi_days,
+    }))?;
+    write_text(&files.window(), &text)
+}
+
+/// The period window of a run, if it has one.
+pub fn read_window(files: &RunFiles) -> Result<Option<(f64, f64)>> {
+    let path = files.window();
+    if !path.exists() {
+        return Ok(None);
+    }
+    let text = fs::read_to_string(&path).with_context(|| format!("reading {}", path.display()))?;
+    let v: serde_json::Value = serde_json::from_str(&text)
+        .with_context(|| format!("{}: not valid JSON", path.display()))?;
+    match (v["period_min_days"].as_f64(), v["period_max_days"].as_f64()) {
+        (Some(lo), Some(hi)) => Ok(Some((lo, hi))),
+        _ => bail!(
+            "{}: expected period_min_days and period_max_days",
+            path.display()
+        ),
+    }
 }
