@@ -5,17 +5,36 @@ use std::path::PathBuf;
 use std::process::Command;
 use std::time::{Duration, Instant};
 
-/// The example binary, built by `cargo test` next to the test executables.
+/// The example binary, built by `cargo test` next to the test executables
+/// (`target/<profile>/examples/`); when only this test target was built
+/// (`cargo test --test sampler`), build the example with the same cargo.
 fn example_binary() -> PathBuf {
     let exe = std::env::current_exe().unwrap();
-    // target/<profile>/deps/sampler-xxxx -> target/<profile>/examples/checkpointed_run
-    let dir = exe.parent().and_then(|d| d.parent()).unwrap();
-    let bin = dir.join("examples").join("checkpointed_run");
-    assert!(
-        bin.exists(),
-        "example not built at {} (run the whole test suite, `cargo test -p dyad-sampler`, which builds examples)",
-        bin.display()
-    );
+    let profile_dir = exe.parent().and_then(|d| d.parent()).unwrap().to_path_buf();
+    let bin = profile_dir.join("examples").join("checkpointed_run");
+    if !bin.exists() {
+        let release = profile_dir.file_name().is_some_and(|n| n == "release");
+        let target_dir = profile_dir.parent().unwrap();
+        let mut cmd = Command::new(env!("CARGO"));
+        cmd.args([
+            "build",
+            "-q",
+            "-p",
+            "dyad-sampler",
+            "--example",
+            "checkpointed_run",
+        ])
+        .env("CARGO_TARGET_DIR", target_dir);
+        if release {
+            cmd.arg("--release");
+        }
+        let status = cmd.status().unwrap();
+        assert!(
+            status.success(),
+            "could not build the checkpointed_run example"
+        );
+    }
+    assert!(bin.exists(), "example not found at {}", bin.display());
     bin
 }
 
