@@ -30,6 +30,8 @@ pub struct FitOptions {
     pub overwrite: bool,
     /// No progress bar.
     pub quiet: bool,
+    /// Seconds between checkpoints (default: a few).
+    pub checkpoint_seconds: Option<f64>,
 }
 
 /// How a run ended, written to `outcome.json` when the sampler returns.
@@ -258,7 +260,11 @@ pub fn fit(config_path: &Path, options: &FitOptions) -> Result<()> {
         .clone()
         .unwrap_or_else(|| config.output.folder.clone());
     let files = open_run_folder(&folder, &config, &config_text, options.overwrite)?;
-    let plan = SamplingPlan::new(&config, &model, Some(checkpoint_config(&files)))?;
+    let mut checkpoint = checkpoint_config(&files);
+    if let Some(seconds) = options.checkpoint_seconds {
+        checkpoint.interval = std::time::Duration::from_secs_f64(seconds.max(0.0));
+    }
+    let plan = SamplingPlan::new(&config, &model, Some(checkpoint))?;
     if !options.quiet {
         eprintln!("{}", crate::check::describe(&config, &model, &plan));
         eprintln!("searching for a starting point ...");

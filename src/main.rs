@@ -50,6 +50,9 @@ enum Command {
         /// No progress bar and no summary on the terminal.
         #[arg(long)]
         quiet: bool,
+        /// Seconds between checkpoints (default 5).
+        #[arg(long, hide = true)]
+        checkpoint_seconds: Option<f64>,
     },
     /// Continue a stopped run from its checkpoint.
     Resume {
@@ -123,12 +126,14 @@ fn run(cli: Cli) -> Result<()> {
             output,
             overwrite,
             quiet,
+            checkpoint_seconds,
         } => fit::fit(
             &config,
             &fit::FitOptions {
                 output,
                 overwrite,
                 quiet,
+                checkpoint_seconds,
             },
         ),
         Command::Resume {
