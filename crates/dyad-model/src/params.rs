@@ -85,16 +85,46 @@ use dyad_orbit::{laws, CampbellElements};
 pub struct ScaledPrior {
     prior: Prior,
     scale: f64,
+    inv_scale: f64,
     ln_scale: f64,
+    /// For a log-uniform prior: (ln lo, ln hi, density) of ln x, which is
+    /// uniform, so the log coordinate needs neither exp nor ln.
+    log_uniform: Option<(f64, f64, f64)>,
 }
 
 impl ScaledPrior {
     /// A prior whose variable times `scale` is the internal value (`scale` > 0).
     pub fn new(prior: Prior, scale: f64) -> Self {
+        let log_uniform = match prior.shape() {
+            PriorShape::LogUniform { min, max } => {
+                let (lo, hi) = ((min * scale).ln(), (max * scale).ln());
+                Some((lo, hi, -(hi - lo).ln()))
+            }
+            _ => None,
+        };
         Self {
             prior,
             scale,
+            inv_scale: 1.0 / scale,
             ln_scale: scale.ln(),
+            log_uniform,
+        }
+    }
+
+    /// Log density of s = ln(internal value) per unit of s (the Jacobian
+    /// + s included): ln p(e^s) + s.
+    #[inline]
+    pub fn ln_pdf_of_log(&self, s: f64) -> f64 {
+        match self.log_uniform {
+            // p(x) = 1 / (x ln(hi/lo)) makes ln x uniform on [ln lo, ln hi].
+            Some((lo, hi, value)) => {
+                if s >= lo && s <= hi {
+                    value
+                } else {
+                    f64::NEG_INFINITY
+                }
+            }
+            None => self.ln_pdf(s.exp()) + s,
         }
     }
 
@@ -116,7 +146,7 @@ impl ScaledPrior {
     /// Log density per internal unit.
     #[inline]
     pub fn ln_pdf(&self, internal: f64) -> f64 {
-        self.prior.ln_pdf(internal / self.scale) - self.ln_scale
+        self.prior.ln_pdf(internal * self.inv_scale) - self.ln_scale
     }
 
     /// The fixed value in internal units, if this is a point mass.
@@ -308,7 +338,7 @@ impl Coord {
             Coord::Fixed(_) => 0.0,
             Coord::Linear(i) => prior.ln_pdf(x[i]),
             // s = ln q: p(s) = p(q) dq/ds = p(q) q, ln p(s) = ln p(q) + s.
-            Coord::Log(i) => prior.ln_pdf(x[i].exp()) + x[i],
+            Coord::Log(i) => prior.ln_pdf_of_log(x[i]),
         }
     }
 }
@@ -337,7 +367,11 @@ impl AnglePair {
     /// ln p(u, v) = ln p_angle(angle) - ln(divisor) - r^2 / 2 (module docs).
     #[inline]
     fn ln_prior(self, x: &[f64], prior: &WrappedAngle) -> f64 {
-        prior.ln_pdf(self.angle(x)) - self.divisor.ln() - 0.5 * self.radius_sq(x)
+        let ln_angle = match prior.constant {
+            Some(c) => c,
+            None => prior.ln_pdf(self.angle(x)),
+        };
+        ln_angle - self.divisor.ln() - 0.5 * self.radius_sq(x)
     }
 
     /// Writes (u, v) for an angle at radius r.
@@ -1086,7 +1120,10 @@ impl ParameterLayout {
                     } else {
                         // p(x, y) = 2 p(e) p(omega): dx dy = de domega / 2.
                         LN_2 + pr.eccentricity.ln_pdf(e)
-                            + self.omega_wrapped.ln_pdf(reduce_angle(s.atan2(c), TAU))
+                            + match self.omega_wrapped.constant {
+                                Some(k) => k,
+                                None => self.omega_wrapped.ln_pdf(reduce_angle(s.atan2(c), TAU)),
+                            }
                     }
                 }
                 EccentricityBlock::EccentricityOnly(i, _) => {
