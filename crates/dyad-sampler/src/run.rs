@@ -803,7 +803,7 @@ fn drive<D: LogDensity + ?Sized>(
 
     if status != RunStatus::Converged || !state.converged {
         // Burn-in from the last tau estimate when the rule did not fire.
-        state.burn_in = fallback_burn_in(state, config);
+        state.burn_in = fallback_burn_in(state, config, &mut estimator);
     }
     write_checkpoint(config, state, samples, ladder_store.as_deref_mut())?;
     samples.sync()?;
@@ -840,18 +840,34 @@ fn check_convergence(state: &mut State, conv: &Convergence, estimator: &mut Auto
     state.last_tau = taus;
 }
 
-fn fallback_burn_in(state: &State, config: &RunConfig) -> u64 {
-    let start = state.history.start;
-    let run = state.step.saturating_sub(start);
-    let taus = &state.last_tau;
+/// Burn-in when the stopping rule did not fire (step cap, cancel, fixed-length
+/// run): `burn_in_taus` times the largest tau of the whole history, at most
+/// half the run; half the run when tau cannot be estimated.
+fn fallback_burn_in(state: &State, config: &RunConfig, estimator: &mut AutocorrEstimator) -> u64 {
+    let h = &state.history;
+    let run = state.step.saturating_sub(h.start);
     let factor = config.convergence.as_ref().map_or(3.0, |c| c.burn_in_taus);
-    if !taus.is_empty() && taus.iter().all(|t| t.is_finite()) {
-        let tau_max = taus.iter().cloned().fold(0.0, f64::max);
-        start + ((factor * tau_max).ceil() as u64).min(run / 2)
-    } else if config.convergence.is_some() {
-        start + run / 2
+    let mut tau_max = f64::NAN;
+    if h.len >= 8 {
+        tau_max = 0.0;
+        for p in 0..h.dim {
+            let tau = estimator
+                .estimate(h.draws(p, 0), h.len, h.n_walkers)
+                .map_or(f64::NAN, |a| a.tau * h.thin as f64);
+            tau_max = if tau.is_finite() {
+                tau_max.max(tau)
+            } else {
+                f64::NAN
+            };
+            if tau_max.is_nan() {
+                break;
+            }
+        }
+    }
+    if tau_max.is_finite() {
+        h.start + ((factor * tau_max).ceil() as u64).min(run / 2)
     } else {
-        start
+        h.start + run / 2
     }
 }
 
