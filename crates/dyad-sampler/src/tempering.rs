@@ -20,7 +20,7 @@ use crate::rng::StreamRng;
 /// temperature: the input of the evidence estimators.
 #[derive(Clone, Debug, PartialEq)]
 pub struct TemperedLogLikelihoods {
-    /// Inverse temperatures, descending: betas[0] = 1.0 (cold), last is the hottest, may be 0.
+    /// Inverse temperatures, descending: `betas[0] = 1.0` (cold), last is the hottest, may be 0.
     pub betas: Vec<f64>,
     /// Walkers per temperature.
     pub n_walkers: usize,
