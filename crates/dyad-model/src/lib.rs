@@ -17,6 +17,33 @@
 //! data, then [`likelihood::Model::from_config`] gives a model whose
 //! `log_posterior(&x)` is what the sampler needs; `Model::layout()` names the
 //! coordinates, `Model::derived(&x)` turns a sample into physical quantities.
+//!
+//! ```
+//! use dyad_model::data::{AstrometryEpoch, Dataset, RelativePosition};
+//! use dyad_model::likelihood::Model;
+//! use dyad_model::params::ModelPriors;
+//! use rand::SeedableRng;
+//!
+//! let epoch = |t_jd: f64, pa_deg: f64| AstrometryEpoch {
+//!     t_jd,
+//!     position: RelativePosition::Polar {
+//!         sep_mas: 250.0, sep_err_mas: 3.0,
+//!         pa_rad: pa_deg.to_radians(), pa_err_rad: 0.01, corr: 0.0,
+//!     },
+//!     source: None,
+//! };
+//! let data = Dataset {
+//!     astrometry: vec![epoch(2_450_000.0, 10.0), epoch(2_451_000.0, 40.0), epoch(2_452_000.0, 75.0)],
+//!     ..Dataset::default()
+//! };
+//! let model = Model::new(data.clone(), &ModelPriors::defaults(&data)).unwrap();
+//! assert_eq!(model.parameter_names()[0], "ln_period_days");
+//! let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(1);
+//! let x = model.layout().sample_prior(&mut rng);
+//! assert!(model.log_prior(&x).is_finite());
+//! let (lp, ll) = (model.log_prior(&x), model.log_likelihood(&x));
+//! assert!((model.log_posterior(&x) - (lp + ll)).abs() < 1e-9 * ll.abs().max(1.0));
+//! ```
 pub mod config;
 pub mod data;
 pub mod derived;
