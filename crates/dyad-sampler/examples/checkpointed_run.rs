@@ -42,10 +42,10 @@ fn main() -> ExitCode {
 fn go(folder: PathBuf, total: u64, resuming: bool) -> Result<(), dyad_sampler::SamplerError> {
     let dim = 6;
     let density = FnLogPdf::new(dim, |x: &[f64]| {
-        // About 20 microseconds of busy work that does not change the value,
+        // About 10 microseconds of busy work that does not change the value,
         // so that a run lasts long enough to be killed part-way.
         let mut waste = 0.0f64;
-        for k in 0..2000 {
+        for k in 0..1000 {
             waste += (k as f64 * 1e-3 + x[0]).sin();
         }
         let mut q = 0.0;

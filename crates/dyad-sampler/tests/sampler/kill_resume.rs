@@ -41,7 +41,7 @@ fn example_binary() -> PathBuf {
 #[test]
 fn killed_and_resumed_run_matches_uninterrupted_run() {
     let bin = example_binary();
-    let total = "1500";
+    let total = "3000";
     let dir = tempfile::tempdir().unwrap();
     let (a, b) = (dir.path().join("a"), dir.path().join("b"));
     std::fs::create_dir_all(&a).unwrap();
@@ -50,14 +50,17 @@ fn killed_and_resumed_run_matches_uninterrupted_run() {
     let status = Command::new(&bin).arg(&a).arg(total).status().unwrap();
     assert!(status.success());
 
-    // Start, wait for a checkpoint to exist plus a little more, then SIGKILL.
+    // Start, wait for a checkpoint past step 300 (checkpoints are replaced
+    // atomically, so reading one never sees a half-written file), then SIGKILL.
     let mut child = Command::new(&bin).arg(&b).arg(total).spawn().unwrap();
     let ckpt = b.join("state.ckpt");
     let t0 = Instant::now();
-    while !ckpt.exists() && t0.elapsed() < Duration::from_secs(60) {
-        std::thread::sleep(Duration::from_millis(10));
+    while t0.elapsed() < Duration::from_secs(120) {
+        if ckpt.exists() && dyad_sampler::checkpoint_step(&ckpt).unwrap() >= 300 {
+            break;
+        }
+        std::thread::sleep(Duration::from_millis(5));
     }
-    std::thread::sleep(Duration::from_millis(120));
     let finished_early = child.try_wait().unwrap().is_some();
     child.kill().unwrap();
     child.wait().unwrap();
@@ -66,7 +69,7 @@ fn killed_and_resumed_run_matches_uninterrupted_run() {
         "the run ended before it could be killed; make it longer"
     );
     let step = dyad_sampler::checkpoint_step(&ckpt).unwrap();
-    assert!(step > 0 && step < 1500, "checkpoint at step {step}");
+    assert!((300..3000).contains(&step), "checkpoint at step {step}");
 
     let status = Command::new(&bin)
         .arg(&b)
@@ -81,6 +84,6 @@ fn killed_and_resumed_run_matches_uninterrupted_run() {
     assert!(sa == sb, "sample files differ after kill and resume");
     assert_eq!(
         dyad_sampler::checkpoint_step(b.join("state.ckpt")).unwrap(),
-        1500
+        3000
     );
 }
