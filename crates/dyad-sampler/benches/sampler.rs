@@ -91,6 +91,19 @@ fn thread_speed_up(c: &mut Criterion) {
         g.bench_function(BenchmarkId::new("threads", threads), |b| {
             b.iter(|| pool.install(|| fixed_run(&density, nw, steps, true)))
         });
+        // Control: the same evaluations as one embarrassingly parallel batch
+        // with no sampler at all, to show how much parallelism the machine
+        // offers right now.
+        let points = vec![[0.1f64; 6]; nw * steps as usize];
+        g.bench_function(BenchmarkId::new("rayon_control", threads), |b| {
+            b.iter(|| {
+                pool.install(|| {
+                    use rayon::prelude::*;
+                    let s: f64 = points.par_iter().map(|x| density.log_likelihood(x)).sum();
+                    black_box(s)
+                })
+            })
+        });
     }
     g.finish();
 }
