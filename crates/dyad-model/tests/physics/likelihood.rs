@@ -275,6 +275,9 @@ fn noise_free_model() -> (Model, Vec<f64>) {
     (model, x)
 }
 
+/// Analytic: with noise-free data every residual is zero at the truth, so
+/// chi^2 = 0 is its global minimum and the (fixed-error) likelihood its
+/// maximum; moving any parameter that changes a model value lowers ln L.
 #[test]
 fn noise_free_data_peak_at_the_truth() {
     let (model, x) = noise_free_model();
@@ -296,6 +299,7 @@ fn noise_free_data_peak_at_the_truth() {
     }
 }
 
+/// Self-consistency: to_physical and from_physical are inverse maps.
 #[test]
 fn physical_round_trip() {
     let (model, x) = noise_free_model();
