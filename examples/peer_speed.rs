@@ -61,10 +61,10 @@ enum Command {
         #[arg(long)]
         out: PathBuf,
         /// Steps of each main sampling run.
-        #[arg(long, default_value_t = 12_000)]
+        #[arg(long, default_value_t = 40_000)]
         steps: u64,
         /// Steps discarded as burn-in (both sides use the same number).
-        #[arg(long, default_value_t = 2_000)]
+        #[arg(long, default_value_t = 5_000)]
         burn_in: u64,
         /// Walkers of the main runs.
         #[arg(long, default_value_t = 32)]

@@ -349,7 +349,7 @@ def main():
         p = sub.add_parser(name)
         p.add_argument("--out", required=True)
         if name == "time":
-            p.add_argument("--steps", type=int, nargs=3, default=[12000, 12000, 12000],
+            p.add_argument("--steps", type=int, nargs=3, default=[40000, 40000, 40000],
                            metavar=("N20", "N100", "N1000"), help="emcee steps per data set")
             p.add_argument("--eval-seconds", type=float, default=0.3)
             p.add_argument("--eval-repeats", type=int, default=5)

@@ -2,9 +2,9 @@
 # Side-by-side speed benchmark of dyad against emcee + NumPy (see README.md).
 #
 # One command from a clean clone: benchmarks/peer/run.sh
-# Settings (environment): STEPS (dyad and peer steps, default 12000),
+# Settings (environment): STEPS (dyad and peer steps, default 40000),
 # PEER_STEPS ("N20 N100 N1000" steps of the emcee runs, default STEPS each),
-# BURN_IN (default 2000), QUICK=1 for a short smoke run (numbers not meaningful).
+# BURN_IN (default 5000), QUICK=1 for a short smoke run (numbers not meaningful).
 set -euo pipefail
 
 here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
@@ -12,8 +12,8 @@ root="$(cd "$here/../.." && pwd)"
 out="$here/out"
 venv="$here/.venv"
 
-steps="${STEPS:-12000}"
-burn_in="${BURN_IN:-2000}"
+steps="${STEPS:-40000}"
+burn_in="${BURN_IN:-5000}"
 eval_seconds=0.3
 if [ "${QUICK:-0}" = 1 ]; then
     steps=1500
@@ -58,3 +58,4 @@ echo "== peer timings (emcee + NumPy)"
 
 echo "== results"
 "$py" "$here/peer_bench.py" report --out "$out"
+echo "== whole benchmark: ${SECONDS} s"
