@@ -6,6 +6,7 @@
 //! from known elements), `periods` (compare period windows by evidence) and
 //! `predict` (where the companion will be at given epochs).
 
+mod calibrate;
 mod check;
 mod density;
 mod fit;
@@ -102,6 +103,22 @@ enum Command {
         #[arg(long, default_value = "jyear")]
         scale: String,
     },
+    /// Simulation-based calibration: draw systems from the prior, simulate,
+    /// fit each, and test that the truth's ranks are uniform
+    /// (settings keys in configs/calibration/README.md).
+    Calibrate {
+        /// The calibration settings (TOML).
+        settings: PathBuf,
+        /// Number of systems instead of the settings' `systems`.
+        #[arg(long)]
+        systems: Option<usize>,
+        /// Output folder instead of the settings' `output`.
+        #[arg(long)]
+        output: Option<PathBuf>,
+        /// Reuse an output folder that already holds files.
+        #[arg(long)]
+        overwrite: bool,
+    },
     /// Write invented measurements of a binary with known elements, as
     /// described by a scenario file (see demo-data/README.md).
     Simulate {
@@ -157,6 +174,19 @@ fn run(cli: Cli) -> Result<()> {
             },
         ),
         Command::Predict { run, epochs, scale } => predict::predict(&run, &epochs, &scale),
+        Command::Calibrate {
+            settings,
+            systems,
+            output,
+            overwrite,
+        } => calibrate::calibrate(
+            &settings,
+            &calibrate::CalibrateOptions {
+                systems,
+                output,
+                overwrite,
+            },
+        ),
         Command::Simulate {
             scenario,
             overwrite,
