@@ -316,11 +316,12 @@ fn write_system(
     folder: &Path,
     truth: Option<(Truth, u64)>,
     sampler_seed: u64,
+    noise: bool,
 ) -> Result<RunConfig> {
     fs::create_dir_all(folder).with_context(|| format!("creating {}", folder.display()))?;
     let mut scenario = settings.observations.clone();
     let (system, instruments, noise_seed, noise) = match truth {
-        Some((t, seed)) => (t.system, t.instruments, seed, true),
+        Some((t, seed)) => (t.system, t.instruments, seed, noise),
         None => (template_system(), BTreeMap::new(), 1, false),
     };
     if let Some(toml::Value::Table(a)) = scenario.get_mut("astrometry") {
@@ -542,6 +543,7 @@ fn calibrate_system(
         &folder,
         Some((truth, system_seed(settings.seed, index, STREAM_NOISE))),
         system_seed(settings.seed, index, STREAM_SAMPLER),
+        true,
     )?;
     let model = Model::from_config(&config)?;
     if model.parameter_names() != template.parameter_names()
@@ -774,6 +776,7 @@ pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()>
         &settings.output.join("systems").join("template"),
         None,
         settings.seed,
+        false,
     )?;
     let template =
         Model::from_config(&template_config).context("building the model of the observing plan")?;
@@ -1055,6 +1058,44 @@ mod tests {
             }
         }
         assert_ne!(system_seed(1, 0, 1), system_seed(2, 0, 1));
+    }
+
+    #[test]
+    fn noise_free_simulations_fit_the_truth_exactly() {
+        // The simulator (dyad-orbit's Orbit) and the likelihood (its batched
+        // solver) must agree: at the true parameters every residual of
+        // noise-free data is zero up to the rounding of the CSV columns
+        // (4 decimals). A sign or unit error between them shows up here.
+        let dir = tempfile::tempdir().expect("temp dir");
+        let file = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/calibration/small.toml");
+        let text = std::fs::read_to_string(&file).expect("small.toml");
+        let mut settings = Settings::parse(&text, &file).expect("valid settings");
+        settings.output = dir.path().to_owned();
+        let template_config = write_system(&settings, &dir.path().join("template"), None, 1, false)
+            .expect("template");
+        let template = Model::from_config(&template_config).expect("model");
+        let mut rng = Xoshiro256PlusPlus::seed_from_u64(5);
+        for n in 0..20 {
+            let x = template.layout().sample_prior(&mut rng);
+            let truth = truth_of(&template, &x, "test").expect("truth");
+            let folder = dir.path().join(format!("{n}"));
+            let config =
+                write_system(&settings, &folder, Some((truth, 3)), 1, false).expect("written");
+            let model = Model::from_config(&config).expect("model");
+            let res = model.residuals(&x).expect("residuals");
+            for a in &res.astrometry {
+                for r in a.residual {
+                    assert!(r.abs() < 2e-4, "system {n}: astrometric residual {r}");
+                }
+            }
+            assert_eq!(res.velocities.len(), 24);
+            for v in &res.velocities {
+                assert!(
+                    v.residual_kms.abs() < 2e-4,
+                    "system {n}: velocity residual {v:?}"
+                );
+            }
+        }
     }
 
     #[test]
