@@ -84,7 +84,10 @@ impl SamplingPlan {
         ])?;
         sampler.thin = s.thinning.max(1) as u64;
         sampler.checkpoint = checkpoint;
-        sampler.convergence = Some(Convergence::default());
+        sampler.convergence = Some(Convergence {
+            tau_multiple: s.autocorrelation_times,
+            ..Convergence::default()
+        });
         let burn_in_steps = (s.burn_in_fraction * s.max_steps as f64).round() as u64;
         if n_temps > 1 {
             sampler.tempering = Some(TemperingConfig {

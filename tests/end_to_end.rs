@@ -160,9 +160,10 @@ fn fit_recovers_the_simulated_system_and_writes_a_complete_run_folder() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("already exists"), "{err}");
     // ... and `dyad report` redraws the same summary from the run folder.
-    let before = fs::read(run.join("summary.json")).unwrap();
+    let before = fs::read_to_string(run.join("summary.json")).unwrap();
     run_ok(dyad().arg("report").arg(&run));
-    assert_eq!(before, fs::read(run.join("summary.json")).unwrap());
+    let after = fs::read_to_string(run.join("summary.json")).unwrap();
+    assert!(before == after, "dyad report changed summary.json");
 
     // `dyad predict` gives positions at future epochs.
     let out = run_ok(
@@ -190,7 +191,7 @@ fn a_killed_fit_resumes_bit_identically() {
     let (dir, config) = simulated_system();
     let text = fs::read_to_string(&config)
         .unwrap()
-        .replace("max_steps = 30000", "max_steps = 4000");
+        .replace("max_steps = 100000", "max_steps = 4000");
     fs::write(&config, text).unwrap();
     let whole = dir.path().join("whole");
     run_ok(
@@ -232,14 +233,14 @@ fn a_killed_fit_resumes_bit_identically() {
         "the run finished before it could be killed: make it longer"
     );
     run_ok(dyad().arg("resume").arg(&broken).arg("--quiet"));
-    assert_eq!(
-        fs::read(whole.join("chain.bin")).unwrap(),
-        fs::read(broken.join("chain.bin")).unwrap(),
+    assert!(
+        fs::read(whole.join("chain.bin")).unwrap() == fs::read(broken.join("chain.bin")).unwrap(),
         "the resumed chain differs from the uninterrupted one"
     );
-    assert_eq!(
-        fs::read(whole.join("summary.json")).unwrap(),
-        fs::read(broken.join("summary.json")).unwrap()
+    assert!(
+        fs::read(whole.join("summary.json")).unwrap()
+            == fs::read(broken.join("summary.json")).unwrap(),
+        "the resumed run's summary differs"
     );
 }
 
@@ -253,8 +254,8 @@ fn bad_input_fails_with_a_located_message_and_writes_nothing() {
             "data.astrometry",
         ),
         (
-            "max_steps = 30000",
-            "max_steps = 30000\nwalkerz = 3",
+            "max_steps = 100000",
+            "max_steps = 100000\nwalkerz = 3",
             "sampler.walkerz",
         ),
         (

@@ -133,6 +133,9 @@ pub struct SamplerSettings {
     pub burn_in_fraction: f64,
     /// `seed` (default 1).
     pub seed: u64,
+    /// `autocorrelation_times`: stop once the chain after burn-in is longer
+    /// than this many autocorrelation times (default 50).
+    pub autocorrelation_times: f64,
     /// `temperatures`: "off" (default), "auto", or a number.
     pub tempering: Tempering,
     /// `period_windows_days` or `period_windows_years`: period ranges
@@ -147,6 +150,7 @@ impl Default for SamplerSettings {
             max_steps: 20_000,
             thinning: 1,
             burn_in_fraction: 0.5,
+            autocorrelation_times: 50.0,
             seed: 1,
             tempering: Tempering::Off,
             period_windows_days: Vec::new(),
@@ -738,6 +742,7 @@ fn read_sampler(s: &Section<'_>) -> Result<SamplerSettings, ModelError> {
         "max_steps",
         "thinning",
         "burn_in_fraction",
+        "autocorrelation_times",
         "seed",
         "temperatures",
         "period_windows_days",
@@ -756,6 +761,15 @@ fn read_sampler(s: &Section<'_>) -> Result<SamplerSettings, ModelError> {
         return Err(s.error(
             "burn_in_fraction",
             format!("must be in [0, 1), got {burn_in_fraction}"),
+        ));
+    }
+    let autocorrelation_times = s
+        .f64("autocorrelation_times")?
+        .unwrap_or(d.autocorrelation_times);
+    if !(autocorrelation_times.is_finite() && autocorrelation_times >= 1.0) {
+        return Err(s.error(
+            "autocorrelation_times",
+            format!("must be a number of at least 1, got {autocorrelation_times}"),
         ));
     }
     let tempering = match s.get("temperatures") {
@@ -787,6 +801,7 @@ fn read_sampler(s: &Section<'_>) -> Result<SamplerSettings, ModelError> {
         thinning: s.count("thinning", 1)?.map_or(d.thinning, |v| v as usize),
         burn_in_fraction,
         seed: s.count("seed", 0)?.unwrap_or(d.seed),
+        autocorrelation_times,
         tempering,
         period_windows_days: windows,
     })

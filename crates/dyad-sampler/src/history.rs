@@ -79,11 +79,6 @@ impl History {
         self.thin *= 2;
     }
 
-    /// Steps covered by the history.
-    pub fn span(&self) -> u64 {
-        self.len as u64 * self.thin
-    }
-
     /// Draws of parameter `p` from snapshot `first` on, step-major.
     pub fn draws(&self, p: usize, first: usize) -> &[f64] {
         &self.data[p][first * self.n_walkers..self.len * self.n_walkers]

@@ -43,7 +43,7 @@ impl Default for Convergence {
     fn default() -> Self {
         Self {
             tau_multiple: 50.0,
-            max_relative_change: 0.02,
+            max_relative_change: 0.05,
             burn_in_taus: 3.0,
             min_check_interval: 100,
         }
@@ -813,17 +813,23 @@ fn drive<D: LogDensity + ?Sized>(
 fn check_convergence(state: &mut State, conv: &Convergence, estimator: &mut AutocorrEstimator) {
     let h = &state.history;
     state.next_check = state.step + conv.min_check_interval.max(state.step / 10);
-    if h.len < 8 {
+    // Estimate tau on the second half of the history only: the first half
+    // holds the approach to the typical set, which inflates tau and keeps
+    // the estimate drifting (common practice: discard the start before
+    // estimating tau, e.g. Sokal 1997 sec. 3).
+    let first = h.len / 2;
+    let kept = h.len - first;
+    if kept < 8 {
         return;
     }
     let taus: Vec<f64> = (0..h.dim)
         .map(|p| {
             estimator
-                .estimate(h.draws(p, 0), h.len, h.n_walkers)
+                .estimate(h.draws(p, first), kept, h.n_walkers)
                 .map_or(f64::NAN, |a| a.tau * h.thin as f64)
         })
         .collect();
-    let span = h.span() as f64;
+    let span = (kept as u64 * h.thin) as f64;
     let long_enough = taus
         .iter()
         .all(|t| t.is_finite() && span > conv.tau_multiple * t);
@@ -835,14 +841,12 @@ fn check_convergence(state: &mut State, conv: &Convergence, estimator: &mut Auto
     if long_enough && stable {
         let tau_max = taus.iter().cloned().fold(0.0, f64::max);
         state.converged = true;
-        state.burn_in = h.start + (conv.burn_in_taus * tau_max).ceil() as u64;
+        let half = first as u64 * h.thin;
+        state.burn_in = h.start + half.max((conv.burn_in_taus * tau_max).ceil() as u64);
     }
     state.last_tau = taus;
 }
 
-/// Burn-in when the stopping rule did not fire (step cap, cancel, fixed-length
-/// run): `burn_in_taus` times the largest tau of the whole history, at most
-/// half the run; half the run when tau cannot be estimated.
 fn fallback_burn_in(state: &State, config: &RunConfig, estimator: &mut AutocorrEstimator) -> u64 {
     let h = &state.history;
     let run = state.step.saturating_sub(h.start);
