@@ -149,9 +149,9 @@ pub fn starting_ensemble(
     let mut positions = Vec::with_capacity(nw * dim);
     for w in 0..nw {
         let m = w % modes.len();
-        for i in 0..dim {
+        for (centre, scale) in modes[m].x.iter().zip(&scales[m]) {
             let n: f64 = rng.sample(rand_distr::StandardNormal);
-            positions.push(modes[m].x[i] + scales[m][i] * n);
+            positions.push(centre + scale * n);
         }
     }
     Ok(Start::Positions(positions))

@@ -185,7 +185,7 @@ pub fn periods(config_path: &Path, options: &PeriodOptions) -> Result<()> {
     let mut results = Vec::new();
     for (k, &(lo, hi)) in windows.iter().enumerate() {
         let prior_mass = period_prior.cdf(hi) - period_prior.cdf(lo);
-        if !(prior_mass > 0.0) {
+        if prior_mass.is_nan() || prior_mass <= 0.0 {
             bail!(
                 "{}: period window {} ({}) has no prior mass: it lies outside the period prior",
                 config.file.display(),
