@@ -50,6 +50,12 @@ OFFSET_KMS = (-1000.0, 1000.0)  # uniform
 JITTER_KMS = (0.001, 10.0)  # log-uniform
 
 
+def _ln_radial(rho):
+    """ln of 2 g(rho), g the Gamma(k = 4, scale 1/4) density of rho = r^2."""
+    k = 4.0
+    return LN_2 + k * math.log(k) - math.log(6.0) + (k - 1.0) * np.log(rho) - k * rho
+
+
 def _log_uniform_norm(lo, hi):
     return -math.log(math.log(hi) - math.log(lo))
 
@@ -175,12 +181,13 @@ class JointModel:
             e = ec * ec + es * es
             ok &= e < 1.0
             lp += LN_2 - math.log(1.0) - math.log(TAU)
-            # Phase and node 2-vectors: uniform angle, Rayleigh radius.
-            lp += -math.log(TAU) - 0.5 * (pu * pu + pv * pv)
+            # Phase and node 2-vectors: uniform angle; r^2 ~ Gamma(4, 1/4),
+            # density in (u, v) = p(angle) * 2 g(r^2) (dyad-model params.rs).
+            lp += -math.log(TAU) + _ln_radial(pu * pu + pv * pv)
             # Isotropic orientation: cos i uniform on [-1, 1].
             ok &= (ci >= -1.0) & (ci <= 1.0)
             lp += -LN_2
-            lp += -math.log(TAU) - 0.5 * (nu * nu + nv * nv)
+            lp += -math.log(TAU) + _ln_radial(nu * nu + nv * nv)
             M = np.exp(s_m)
             ok &= (M >= TOTAL_MASS_MSUN[0]) & (M <= TOTAL_MASS_MSUN[1])
             lp += _log_uniform_norm(*TOTAL_MASS_MSUN) - np.log(M) + s_m
