@@ -19,7 +19,7 @@ use crate::data::Dataset;
 use crate::error::ModelError;
 use crate::params::{InclinationPrior, ModelPriors, ScaledPrior};
 use crate::prior::Prior;
-use crate::toml_walk::{describe_value, line_of, Section};
+use crate::toml_walk::{describe_value, parse_table, Section};
 use dyad_orbit::constants::{DEG, JULIAN_YEAR_DAYS};
 use dyad_orbit::TimeScale;
 
@@ -318,10 +318,7 @@ impl RunConfig {
     /// Parses configuration text as if read from `path` (which sets the
     /// folder data paths are relative to, and is named in errors).
     pub fn from_toml_str(text: &str, path: &Path) -> Result<RunConfig, ModelError> {
-        let table: toml::Table = toml::from_str(text).map_err(|e| {
-            let line = e.span().map(|s| line_of(text, s.start));
-            ModelError::at(path, line, None, format!("not valid TOML: {}", e.message()))
-        })?;
+        let table = parse_table(text, path)?;
         let base = path.parent().map(Path::to_owned).unwrap_or_default();
         let root = Section {
             file: path,

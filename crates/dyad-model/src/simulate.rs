@@ -25,7 +25,7 @@ use dyad_orbit::{laws, velocity, CampbellElements, Orbit, TimeScale};
 
 use crate::data::Star;
 use crate::error::ModelError;
-use crate::toml_walk::{describe_value, line_of, Section};
+use crate::toml_walk::{describe_value, parse_table, Section};
 
 /// True elements and physical parameters of a simulated binary, in
 /// internal units.
@@ -492,10 +492,7 @@ impl Scenario {
     /// Parses scenario text as if read from `path` (output files are
     /// relative to its folder).
     pub fn from_toml_str(text: &str, path: &Path) -> Result<Self, ModelError> {
-        let table: toml::Table = toml::from_str(text).map_err(|e| {
-            let line = e.span().map(|sp| line_of(text, sp.start));
-            ModelError::at(path, line, None, format!("not valid TOML: {}", e.message()))
-        })?;
+        let table = parse_table(text, path)?;
         let base = path.parent().map(Path::to_owned).unwrap_or_default();
         let root = Section {
             file: path,

@@ -139,3 +139,11 @@ pub(crate) fn line_of(text: &str, offset: usize) -> usize {
         .count()
         + 1
 }
+
+/// Parses TOML text read from `path`; a syntax error names the file and line.
+pub(crate) fn parse_table(text: &str, path: &Path) -> Result<toml::Table, ModelError> {
+    toml::from_str(text).map_err(|e| {
+        let line = e.span().map(|s| line_of(text, s.start));
+        ModelError::at(path, line, None, format!("not valid TOML: {}", e.message()))
+    })
+}
