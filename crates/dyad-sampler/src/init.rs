@@ -109,50 +109,52 @@ pub(crate) fn place_walkers<D: LogDensity + ?Sized>(
                         .into(),
                 });
             }
-            for w in 0..n_walkers {
-                let x = &mut pos[w * dim..(w + 1) * dim];
-                let mut found = None;
-                for _ in 0..max_tries {
-                    for i in 0..dim {
-                        let n: f64 = StandardNormal.sample(rng);
-                        x[i] = centre[i] + scale[i] * n;
-                    }
-                    if let Some(d) = density_at(density, x) {
-                        found = Some(d);
-                        break;
-                    }
+            let mut propose = |rng: &mut dyn RngCore, x: &mut [f64]| {
+                for i in 0..dim {
+                    let n: f64 = StandardNormal.sample(rng);
+                    x[i] = centre[i] + scale[i] * n;
                 }
-                let (lp, ll) = found.ok_or(SamplerError::NoValidStart {
-                    walker: w,
-                    rung,
-                    tries: max_tries,
-                })?;
-                lps[w] = lp;
-                lls[w] = ll;
-            }
+            };
+            let out = (&mut pos[..], &mut lps[..], &mut lls[..]);
+            draw_walkers(density, out, rung, max_tries, rng, &mut propose)?;
         }
         Start::Draws(draw) => {
-            for w in 0..n_walkers {
-                let x = &mut pos[w * dim..(w + 1) * dim];
-                let mut found = None;
-                for _ in 0..max_tries {
-                    draw(rng, x);
-                    if let Some(d) = density_at(density, x) {
-                        found = Some(d);
-                        break;
-                    }
-                }
-                let (lp, ll) = found.ok_or(SamplerError::NoValidStart {
-                    walker: w,
-                    rung,
-                    tries: max_tries,
-                })?;
-                lps[w] = lp;
-                lls[w] = ll;
-            }
+            let out = (&mut pos[..], &mut lps[..], &mut lls[..]);
+            draw_walkers(density, out, rung, max_tries, rng, &mut |rng, x| {
+                draw(rng, x)
+            })?;
         }
     }
     Ok((pos, lps, lls))
+}
+
+/// Fills every walker's position with proposals until one has a finite
+/// density (at most `max_tries` per walker), recording its log prior and
+/// log likelihood.
+fn draw_walkers<D: LogDensity + ?Sized>(
+    density: &D,
+    (pos, lps, lls): (&mut [f64], &mut [f64], &mut [f64]),
+    rung: usize,
+    max_tries: usize,
+    rng: &mut dyn RngCore,
+    propose: &mut dyn FnMut(&mut dyn RngCore, &mut [f64]),
+) -> Result<(), SamplerError> {
+    let dim = density.dim();
+    for w in 0..lps.len() {
+        let x = &mut pos[w * dim..(w + 1) * dim];
+        let found = (0..max_tries).find_map(|_| {
+            propose(rng, x);
+            density_at(density, x)
+        });
+        let (lp, ll) = found.ok_or(SamplerError::NoValidStart {
+            walker: w,
+            rung,
+            tries: max_tries,
+        })?;
+        lps[w] = lp;
+        lls[w] = ll;
+    }
+    Ok(())
 }
 
 /// Numerical rank of the centred positions (walker-major, `n_walkers x dim`),
