@@ -1,11 +1,11 @@
 //! Walkers, the red-blue ensemble update and its parallel evaluation.
 
 use rand::Rng;
-use rayon::prelude::*;
 
 use crate::density::LogDensity;
 use crate::moves::{propose, MoveMixture, Scratch};
 use crate::rng::StreamRng;
+use crate::team::Team;
 
 /// One walker: position, cached log-densities, its own random stream,
 /// preallocated proposal buffers and acceptance book-keeping.
@@ -38,7 +38,7 @@ pub(crate) fn tempered(beta: f64, log_prior: f64, log_likelihood: f64) -> f64 {
 impl Walker {
     /// One Metropolis-Hastings update against the fixed complementary half.
     #[inline]
-    fn advance<D: LogDensity + ?Sized>(
+    pub(crate) fn advance<D: LogDensity + ?Sized>(
         &mut self,
         complement: &[Walker],
         moves: &MoveMixture,
@@ -90,17 +90,14 @@ pub(crate) struct Rung {
 }
 
 impl Rung {
-    /// Updates half `part` (0 = first half, 1 = second) against the other half
-    /// (Foreman-Mackey et al. 2013, PASP 125, 306, Algorithm 3). With
-    /// `parallel`, walkers are shared among threads in tasks of at least
-    /// `min_len` walkers (only the scheduling changes, never the result).
+    /// Updates half `part` (0 = first half, 1 = second) against the other
+    /// half on the calling thread (Foreman-Mackey et al. 2013, PASP 125,
+    /// 306, Algorithm 3).
     pub fn half_step<D: LogDensity + ?Sized>(
         &mut self,
         part: usize,
         density: &D,
         moves: &MoveMixture,
-        parallel: bool,
-        min_len: usize,
     ) {
         let half = self.walkers.len() / 2;
         let beta = self.beta;
@@ -110,15 +107,8 @@ impl Rung {
         } else {
             (second, first)
         };
-        if parallel {
-            active
-                .par_iter_mut()
-                .with_min_len(min_len)
-                .for_each(|w| w.advance(complement, moves, density, beta));
-        } else {
-            active
-                .iter_mut()
-                .for_each(|w| w.advance(complement, moves, density, beta));
+        for w in active.iter_mut() {
+            w.advance(complement, moves, density, beta);
         }
     }
 }
@@ -129,25 +119,33 @@ impl Rung {
 pub(crate) enum Schedule {
     /// All on the calling thread.
     Serial,
-    /// Rayon tasks of at least this many walkers.
-    Parallel { min_len: usize },
+    /// Shared with the team's helpers in claims of this many walkers.
+    Parallel { chunk: usize },
 }
 
-/// Wall time of work worth one rayon task: well above rayon's per-task
-/// overhead (a few microseconds), so cheap densities are not slowed down by threads.
-const TASK_NANOS: f64 = 50_000.0;
+/// Least work in one half-step (all rungs) worth sharing between threads:
+/// waking a spinning helper and the claims cost about a microsecond.
+const PARALLEL_NANOS: f64 = 8_000.0;
+/// Work per claim: keeps the shared counter quiet for cheap densities.
+const CLAIM_NANOS: f64 = 2_000.0;
 
 impl Schedule {
     /// Picks the schedule from the measured cost of one walker update.
-    pub fn from_cost(nanos_per_walker: f64, walkers_per_half: usize, n_rungs: usize) -> Self {
-        let min_len = (TASK_NANOS / nanos_per_walker.max(1.0)).ceil() as usize;
-        if min_len >= walkers_per_half * n_rungs {
-            Schedule::Serial
-        } else {
-            Schedule::Parallel {
-                min_len: min_len.clamp(1, walkers_per_half),
-            }
+    pub fn from_cost(
+        nanos_per_walker: f64,
+        walkers_per_half: usize,
+        n_rungs: usize,
+        helpers: usize,
+    ) -> Self {
+        let per_walker = nanos_per_walker.max(1.0);
+        let total = walkers_per_half * n_rungs;
+        if helpers == 0 || per_walker * (total as f64) < PARALLEL_NANOS {
+            return Schedule::Serial;
         }
+        // At least four claims per thread, so the load can balance.
+        let most = (total / (4 * (helpers + 1))).max(1);
+        let chunk = ((CLAIM_NANOS / per_walker).ceil() as usize).clamp(1, most);
+        Schedule::Parallel { chunk }
     }
 }
 
@@ -157,22 +155,16 @@ pub(crate) fn step_all<D: LogDensity + ?Sized>(
     density: &D,
     moves: &MoveMixture,
     schedule: Schedule,
+    team: &Team,
 ) {
     for part in 0..2 {
         match schedule {
-            Schedule::Parallel { min_len } if rungs.len() > 1 => {
-                rungs
-                    .par_iter_mut()
-                    .for_each(|r| r.half_step(part, density, moves, true, min_len));
+            Schedule::Parallel { chunk } if team.helpers() > 0 => {
+                team.half_step(rungs, part, chunk, density, moves);
             }
-            Schedule::Parallel { min_len } => {
+            _ => {
                 for r in rungs.iter_mut() {
-                    r.half_step(part, density, moves, true, min_len);
-                }
-            }
-            Schedule::Serial => {
-                for r in rungs.iter_mut() {
-                    r.half_step(part, density, moves, false, 1);
+                    r.half_step(part, density, moves);
                 }
             }
         }

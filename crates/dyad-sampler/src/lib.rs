@@ -57,6 +57,7 @@ mod moves;
 mod rng;
 mod run;
 pub mod storage;
+mod team;
 pub mod tempering;
 
 pub use density::{FnDensity, FnLogPdf, LogDensity};

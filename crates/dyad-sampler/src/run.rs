@@ -19,6 +19,7 @@ use crate::init::{check_initial_ensemble, check_walker_count, place_walkers, Sta
 use crate::moves::{MoveMixture, Scratch};
 use crate::rng::{stream_rng, Stream, StreamRng};
 use crate::storage::{read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink};
+use crate::team::{helper_count, StopOnDrop, Team};
 use crate::tempering::{Ladder, TemperedLogLikelihoods, TemperingConfig};
 
 /// Steps between re-timings of the density (to choose the thread schedule).
@@ -96,7 +97,8 @@ pub struct RunConfig {
     pub convergence: Option<Convergence>,
     /// Keep (stream to the sink) every `thin`-th step.
     pub thin: u64,
-    /// Evaluate walkers in parallel with rayon (results are identical either way).
+    /// Share walker updates with helper threads, as many as the current rayon
+    /// pool has (results are identical either way).
     pub parallel: bool,
     /// Periodic checkpoints.
     pub checkpoint: Option<CheckpointConfig>,
@@ -679,8 +681,34 @@ fn drive<D: LogDensity + ?Sized>(
     config: &RunConfig,
     state: &mut State,
     samples: &mut dyn SampleSink,
+    ladder_store: Option<&mut LadderStore>,
+    control: RunControl<'_>,
+) -> Result<RunResult, SamplerError> {
+    let helpers = if config.parallel { helper_count() } else { 0 };
+    let team = Team::new(helpers, state.rungs.len());
+    std::thread::scope(|scope| {
+        team.start(scope, density, &config.moves);
+        let _stop = StopOnDrop(&team);
+        drive_steps(
+            density,
+            config,
+            state,
+            samples,
+            ladder_store,
+            control,
+            &team,
+        )
+    })
+}
+
+fn drive_steps<D: LogDensity + ?Sized>(
+    density: &D,
+    config: &RunConfig,
+    state: &mut State,
+    samples: &mut dyn SampleSink,
     mut ladder_store: Option<&mut LadderStore>,
     mut control: RunControl<'_>,
+    team: &Team,
 ) -> Result<RunResult, SamplerError> {
     let (dim, nw) = (state.dim, state.n_walkers);
     let n_temps = state.rungs.len();
@@ -720,10 +748,11 @@ fn drive<D: LogDensity + ?Sized>(
             density,
             &config.moves,
             if timing { Schedule::Serial } else { schedule },
+            team,
         );
         if timing {
             let per_walker = t_step.elapsed().as_nanos() as f64 / (n_temps * nw) as f64;
-            schedule = Schedule::from_cost(per_walker, nw / 2, n_temps);
+            schedule = Schedule::from_cost(per_walker, nw / 2, n_temps, team.helpers());
         }
         if n_temps > 1 {
             state.ladder.swap(&mut state.rungs, &mut state.swap_rng);
