@@ -81,7 +81,7 @@ pub fn solve_kepler(mean_anomaly: f64, e: f64) -> EccentricAnomaly {
 const INTERVALS: usize = 16;
 /// Number of mean anomalies [`KeplerSolver::solve_many`] and
 /// [`crate::Orbit::states_into`] process together.
-pub const LANES: usize = 8;
+pub const LANES: usize = 2 * GROUP;
 /// Width of one interval in E.
 const STEP: f64 = PI / INTERVALS as f64;
 
@@ -221,11 +221,9 @@ struct CornerTable {
     len: usize,
     /// M at the ends, ascending from M = 0; +inf past `len`.
     m_ends: [f64; CORNER_MAX + 1],
-    /// Hermite coefficients per interval (offset from the interval start).
-    coef: [[f64; 5]; CORNER_MAX],
-    /// Middle of each interval and its half width.
-    mid: [SmallAngle; CORNER_MAX],
-    half: [f64; CORNER_MAX],
+    /// Per interval: start, Hermite coefficients (offset from the interval
+    /// start), middle and half width, laid out as the uniform table's rows.
+    rows: [IntervalRow; CORNER_MAX],
 }
 
 impl CornerTable {
@@ -269,33 +267,25 @@ impl CornerTable {
             d1[i] = slope;
             d2[i] = -e * a.sin * slope * slope * slope;
         }
-        let mut coef = [[0.0; 5]; CORNER_MAX];
-        let mut mid = [SmallAngle::default(); CORNER_MAX];
-        let mut half = [0.0; CORNER_MAX];
-        for i in 0..len {
+        let mut rows = [IntervalRow([0.0; row::LEN]); CORNER_MAX];
+        for (i, r) in rows.iter_mut().enumerate().take(len) {
             let span = ends[i + 1].e - ends[i].e;
-            coef[i] = hermite_quintic(
+            let coef = hermite_quintic(
                 m_ends[i + 1] - m_ends[i],
                 span,
                 (d1[i], d1[i + 1]),
                 (d2[i], d2[i + 1]),
             );
-            half[i] = 0.5 * span;
             // The first interval [0, E_len-1] has its own middle; the others
             // are the shared geometric middles.
-            mid[i] = if i == 0 {
+            let mid = if i == 0 {
                 SmallAngle::new(0.5 * ends[1].e)
             } else {
                 nodes.mids[len - 1 - i]
             };
+            *r = IntervalRow::new(m_ends[i], &coef, &mid, 0.5 * span);
         }
-        Self {
-            len,
-            m_ends,
-            coef,
-            mid,
-            half,
-        }
+        Self { len, m_ends, rows }
     }
 }
 
@@ -337,13 +327,49 @@ pub struct KeplerSolver {
     one_minus_e: f64,
     /// Intervals k < corner_intervals use the corner table.
     corner_intervals: usize,
-    corner: CornerTable,
+    corner: Option<CornerTable>,
     /// M at the interval ends E_k = k pi/16, k = 0..=16.
     m_ends: [f64; INTERVALS + 1],
-    /// Per interval k: E - E_mid = -STEP/2 + t (c0 + t (c1 + ... + t c4)),
-    /// t = M - M_k.
-    coef: [[f64; 5]; INTERVALS],
-    mid: &'static MidNodes,
+    /// Per interval k, everything a solve reads, in one row (see [`Row`]).
+    rows: [IntervalRow; INTERVALS],
+}
+
+/// Positions in an [`IntervalRow`]: the start M_k, the Hermite coefficients
+/// c0..c4 of E - E_mid = -h + t (c0 + t (c1 + ... + t c4)) with t = M - M_k,
+/// then the middle's E, sin E, cos E, E - sin E, 1 - cos E, and the half
+/// width h. The order is the vector kernel's: it loads a row as three
+/// groups of four.
+mod row {
+    pub const START: usize = 0;
+    pub const COEF: usize = 1;
+    pub const MID_E: usize = 6;
+    pub const MID_SIN: usize = 7;
+    pub const MID_COS: usize = 8;
+    pub const MID_E_MINUS_SIN: usize = 9;
+    pub const MID_ONE_MINUS_COS: usize = 10;
+    pub const HALF: usize = 11;
+    pub const LEN: usize = 12;
+}
+
+/// One interval's data, aligned so that the vector kernel's loads never
+/// straddle a cache line.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[repr(C, align(32))]
+struct IntervalRow([f64; row::LEN]);
+
+impl IntervalRow {
+    fn new(start: f64, coef: &[f64; 5], mid: &SmallAngle, half: f64) -> Self {
+        let mut r = [0.0; row::LEN];
+        r[row::START] = start;
+        r[row::COEF..row::COEF + 5].copy_from_slice(coef);
+        r[row::MID_E] = mid.e;
+        r[row::MID_SIN] = mid.sin;
+        r[row::MID_COS] = mid.cos;
+        r[row::MID_E_MINUS_SIN] = mid.e_minus_sin;
+        r[row::MID_ONE_MINUS_COS] = mid.one_minus_cos;
+        r[row::HALF] = half;
+        Self(r)
+    }
 }
 
 impl KeplerSolver {
@@ -364,35 +390,25 @@ impl KeplerSolver {
             d2[k] = -e * s * slope * slope * slope;
         }
         m_ends[INTERVALS] = PI;
-        let mut coef = [[0.0; 5]; INTERVALS];
-        for k in 0..INTERVALS {
-            coef[k] = hermite_quintic(
+        let rows = std::array::from_fn(|k| {
+            let coef = hermite_quintic(
                 m_ends[k + 1] - m_ends[k],
                 STEP,
                 (d1[k], d1[k + 1]),
                 (d2[k], d2[k + 1]),
             );
-        }
+            IntervalRow::new(m_ends[k], &coef, &mid.mids[k], 0.5 * STEP)
+        });
         let corner_intervals = if e > CORNER_E { CORNER_INTERVALS } else { 0 };
-        let corner = if e > CORNER_E {
-            CornerTable::new(e)
-        } else {
-            CornerTable {
-                len: 0,
-                m_ends: [f64::INFINITY; CORNER_MAX + 1],
-                coef: [[0.0; 5]; CORNER_MAX],
-                mid: [SmallAngle::default(); CORNER_MAX],
-                half: [0.0; CORNER_MAX],
-            }
-        };
+        // Only solvers that need it carry (and pay to build) the corner table.
+        let corner = (e > CORNER_E).then(|| CornerTable::new(e));
         Ok(Self {
             e,
             one_minus_e: 1.0 - e,
             corner_intervals,
             corner,
             m_ends,
-            coef,
-            mid,
+            rows,
         })
     }
 
@@ -411,32 +427,61 @@ impl KeplerSolver {
     /// slightly outside, by rounding, are fine).
     #[inline]
     pub fn solve_reduced(&self, mean_anomaly: f64) -> EccentricAnomaly {
-        self.solve_group(&[mean_anomaly])[0]
+        #[cfg(target_arch = "x86_64")]
+        if has_avx2_fma() {
+            // SAFETY: the processor has AVX2 and FMA, checked just above.
+            return unsafe { self.solve_one_fma(mean_anomaly) };
+        }
+        self.solve_group(&[mean_anomaly]).get(0)
+    }
+
+    /// [`Self::solve_reduced`] compiled with hardware fused multiply-add
+    /// (`f64::mul_add` is exactly rounded either way, so the result is
+    /// the same, only faster).
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2,fma")]
+    unsafe fn solve_one_fma(&self, mean_anomaly: f64) -> EccentricAnomaly {
+        self.solve_group(&[mean_anomaly]).get(0)
     }
 
     /// Solves many mean anomalies (any real values, as in [`Self::solve`]):
     /// `out[i]` for `mean_anomalies[i]`. Gives the same values as calling
-    /// [`Self::solve`] on each, but works on groups of [`LANES`] at a time
-    /// so the processor can overlap and vectorise them. If the slices differ
-    /// in length only the common prefix is filled. No allocation.
+    /// [`Self::solve`] on each, but works on groups of mean anomalies at a
+    /// time in vector registers. If the slices differ in length only the
+    /// common prefix is filled. No allocation.
     pub fn solve_many(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
         #[cfg(target_arch = "x86_64")]
-        if std::arch::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor supports AVX2, checked just above.
+        if has_avx2_fma() {
+            // SAFETY: the processor has AVX2 and FMA, checked just above.
             unsafe { self.solve_many_avx2(mean_anomalies, out) };
             return;
         }
         self.solve_many_portable(mean_anomalies, out);
     }
 
-    /// [`Self::solve_many`] compiled for AVX2 (4 f64 per instruction). The
-    /// arithmetic is the same IEEE operations in the same order (no fused
-    /// multiply-add), so the results are bit-for-bit those of the portable
-    /// path.
+    /// [`Self::solve_many`] with the AVX2 kernel, 4 mean anomalies per
+    /// register; a last partial group is padded, so every solve takes the
+    /// same path.
     #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx2")]
+    #[target_feature(enable = "avx2,fma")]
     unsafe fn solve_many_avx2(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
-        self.solve_many_portable(mean_anomalies, out);
+        use std::arch::x86_64::_mm256_loadu_pd;
+        let n = mean_anomalies.len().min(out.len());
+        let (ms, out) = (&mean_anomalies[..n], &mut out[..n]);
+        let mut ms_chunks = ms.chunks_exact(GROUP);
+        let mut out_chunks = out.chunks_exact_mut(GROUP);
+        for (mc, oc) in (&mut ms_chunks).zip(&mut out_chunks) {
+            let m = reduce_mean_anomaly_avx2(_mm256_loadu_pd(mc.as_ptr()));
+            oc.copy_from_slice(&self.solve_group_avx2(m).to_array());
+        }
+        let rest = ms_chunks.remainder();
+        if !rest.is_empty() {
+            let mut padded = [0.0; GROUP];
+            padded[..rest.len()].copy_from_slice(rest);
+            let m = reduce_mean_anomaly_avx2(_mm256_loadu_pd(padded.as_ptr()));
+            let tail = out_chunks.into_remainder();
+            tail.copy_from_slice(&self.solve_group_avx2(m).to_array()[..tail.len()]);
+        }
     }
 
     #[inline(always)]
@@ -450,38 +495,95 @@ impl KeplerSolver {
             for (r, &m) in reduced.iter_mut().zip(mc) {
                 *r = reduce_mean_anomaly(m);
             }
-            let lanes = self.solve_lanes(&reduced);
-            oc.copy_from_slice(&lanes);
+            oc.copy_from_slice(&self.solve_group(&reduced).to_array());
         }
         for (o, &m) in out_chunks
             .into_remainder()
             .iter_mut()
             .zip(ms_chunks.remainder())
         {
-            *o = self.solve(m);
+            *o = self.solve_group(&[reduce_mean_anomaly(m)]).get(0);
         }
     }
 
-    /// [`Self::solve_reduced`] for [`LANES`] mean anomalies at once.
+    /// [`Self::solve_reduced`] for [`LANES`] mean anomalies at once, on the
+    /// portable path.
     #[inline(always)]
-    pub(crate) fn solve_lanes(&self, mean_anomaly: &[f64; LANES]) -> [EccentricAnomaly; LANES] {
+    pub(crate) fn solve_lanes(&self, mean_anomaly: &[f64; LANES]) -> Solved<LANES> {
         self.solve_group(mean_anomaly)
+    }
+
+    /// [`Self::solve_lanes`] by the AVX2 kernel.
+    ///
+    /// # Safety
+    /// The processor must have AVX2 and FMA ([`has_avx2_fma`]); call it from
+    /// a function compiled for them so that it inlines.
+    #[cfg(target_arch = "x86_64")]
+    #[inline(always)]
+    pub(crate) unsafe fn solve_lanes_avx2(&self, mean_anomaly: &[f64; LANES]) -> Solved<LANES> {
+        use std::arch::x86_64::_mm256_loadu_pd;
+        let lo = self.solve_group_avx2(_mm256_loadu_pd(mean_anomaly.as_ptr()));
+        let hi = self.solve_group_avx2(_mm256_loadu_pd(mean_anomaly[GROUP..].as_ptr()));
+        let join = |a: &[f64; GROUP], b: &[f64; GROUP]| -> [f64; LANES] {
+            std::array::from_fn(|i| if i < GROUP { a[i] } else { b[i - GROUP] })
+        };
+        Solved {
+            e_anom: join(&lo.e_anom, &hi.e_anom),
+            sin_e: join(&lo.sin_e, &hi.sin_e),
+            cos_e: join(&lo.cos_e, &hi.cos_e),
+        }
+    }
+
+    /// The vector kernel: the interval count and the table rows go straight
+    /// into registers (rows are loaded four values at a time and
+    /// transposed), then the lane arithmetic shared with the portable path
+    /// ([`Self::refine`]) runs on them, so both give the same bits. Groups
+    /// with a lane in the near-periastron corner table (e > 0.8, E < pi/4)
+    /// take the portable lane code.
+    #[cfg(target_arch = "x86_64")]
+    #[inline(always)]
+    unsafe fn solve_group_avx2(&self, mean_anomaly: std::arch::x86_64::__m256d) -> Solved<GROUP> {
+        use std::arch::x86_64::*;
+        let abs = _mm256_andnot_pd(_mm256_set1_pd(-0.0), mean_anomaly);
+        let k = count_at_or_below(abs, &self.m_ends[1..INTERVALS]);
+        match &self.corner {
+            Some(corner) if k.iter().any(|&k| (k as usize) < self.corner_intervals) => {
+                let j = count_at_or_below(abs, &corner.m_ends[1..corner.len]);
+                let near = k.map(|k| (k as usize) < self.corner_intervals);
+                let rows: [*const f64; GROUP] = std::array::from_fn(|i| {
+                    if near[i] {
+                        corner.rows[j[i] as usize % CORNER_MAX].0.as_ptr()
+                    } else {
+                        self.rows[k[i] as usize & (INTERVALS - 1)].0.as_ptr()
+                    }
+                });
+                let mut lanes = lanes_from_rows(mean_anomaly, abs, &rows, true);
+                if near != [true; GROUP] {
+                    // A group across the corner table's edge.
+                    lanes.near_periastron = near;
+                }
+                self.refine(&lanes)
+            }
+            _ => {
+                let rows = k.map(|k| self.rows[k as usize & (INTERVALS - 1)].0.as_ptr());
+                self.refine(&lanes_from_rows(mean_anomaly, abs, &rows, false))
+            }
+        }
     }
 
     /// The solver proper, for L mean anomalies in [-pi, pi] at once, written
     /// lane by lane so that it compiles to vector instructions; the scalar
-    /// and batch interfaces both run this code, so they agree bit for bit.
+    /// and batch interfaces both run this code (or the AVX2 kernel, which
+    /// shares [`Self::refine`]), so they agree bit for bit.
     #[inline(always)]
-    fn solve_group<const L: usize>(&self, mean_anomaly: &[f64; L]) -> [EccentricAnomaly; L] {
-        let e = self.e;
-        let one_minus_e = self.one_minus_e;
+    fn solve_group<const L: usize>(&self, mean_anomaly: &[f64; L]) -> Solved<L> {
         // E(-M) = -E(M): solve for |M| in [0, pi], restore the sign at the end.
-        let mut m = [0.0; L];
-        let mut sign = [0.0; L];
-        for i in 0..L {
-            sign[i] = if mean_anomaly[i] < 0.0 { -1.0 } else { 1.0 };
-            m[i] = mean_anomaly[i].abs();
+        let mut lanes = Lanes::<L>::default();
+        for (i, &m) in mean_anomaly.iter().enumerate() {
+            lanes.sign[i] = m.to_bits() & SIGN_BIT;
+            lanes.m[i] = m.abs();
         }
+        let m = lanes.m;
         // Interval per lane: count the interior ends at or below m, one end
         // at a time across the lanes (no branches).
         let mut kk = [0usize; L];
@@ -490,75 +592,266 @@ impl KeplerSolver {
                 kk[i] += (m[i] >= end) as usize;
             }
         }
-        // Gather each lane's interval: start in M, polynomial, half width and
-        // the middle's angle data (from the corner table near periastron at
-        // high e). The mask keeps indices provably in range.
-        let mut t = [0.0; L];
-        let mut coef = [[0.0; L]; 5];
-        let mut half = [0.0; L];
-        let (mut em, mut sm, mut cm, mut ems, mut omc) =
-            ([0.0; L], [0.0; L], [0.0; L], [0.0; L], [0.0; L]);
+        // Gather each lane's interval row (from the corner table near
+        // periastron at high e). The mask keeps indices provably in range.
         for i in 0..L {
             let k = kk[i] & (INTERVALS - 1);
-            let (start, c, h, mid) = if k < self.corner_intervals {
-                let j = self.corner.interval(m[i]);
-                (
-                    self.corner.m_ends[j],
-                    &self.corner.coef[j],
-                    self.corner.half[j],
-                    &self.corner.mid[j],
-                )
-            } else {
-                (self.m_ends[k], &self.coef[k], 0.5 * STEP, &self.mid.mids[k])
+            let r = match &self.corner {
+                Some(corner) if k < self.corner_intervals => {
+                    lanes.near_periastron[i] = true;
+                    &corner.rows[corner.interval(m[i])].0
+                }
+                _ => &self.rows[k].0,
             };
-            t[i] = m[i] - start;
-            for (row, &value) in coef.iter_mut().zip(c) {
-                row[i] = value;
+            lanes.start[i] = r[row::START];
+            for (c, coef) in lanes.coef.iter_mut().enumerate() {
+                coef[i] = r[row::COEF + c];
             }
-            half[i] = h;
-            (em[i], sm[i], cm[i], ems[i], omc[i]) =
-                (mid.e, mid.sin, mid.cos, mid.e_minus_sin, mid.one_minus_cos);
+            lanes.half[i] = r[row::HALF];
+            lanes.mid_e[i] = r[row::MID_E];
+            lanes.mid_sin[i] = r[row::MID_SIN];
+            lanes.mid_cos[i] = r[row::MID_COS];
+            lanes.mid_e_minus_sin[i] = r[row::MID_E_MINUS_SIN];
+            lanes.mid_one_minus_cos[i] = r[row::MID_ONE_MINUS_COS];
         }
-        let mut out = [EccentricAnomaly {
-            e_anom: 0.0,
-            sin_e: 0.0,
-            cos_e: 1.0,
-        }; L];
+        self.refine(&lanes)
+    }
+
+    /// From each lane's interval data to the solution: the polynomial
+    /// start, its sine and cosine from the middle's by the addition
+    /// theorem, and one Householder correction. Shared by every path;
+    /// products are fused (`mul_add`, exactly rounded on any processor).
+    #[inline(always)]
+    fn refine<const L: usize>(&self, lanes: &Lanes<L>) -> Solved<L> {
+        let e = self.e;
+        let one_minus_e = self.one_minus_e;
         let (mut ea, mut se, mut ce) = ([0.0; L], [0.0; L], [0.0; L]);
         for i in 0..L {
+            let c = |k: usize| lanes.coef[k][i];
+            let (sm, cm) = (lanes.mid_sin[i], lanes.mid_cos[i]);
+            let omc = lanes.mid_one_minus_cos[i];
             // Start: offset d0 from the middle, by Estrin's scheme.
-            let ti = t[i];
+            let ti = lanes.m[i] - lanes.start[i];
             let t2 = ti * ti;
-            let d0 = -half[i]
-                + ti * ((coef[0][i] + ti * coef[1][i])
-                    + t2 * ((coef[2][i] + ti * coef[3][i]) + t2 * coef[4][i]));
-            let e0 = em[i] + d0;
+            let p = t2.mul_add(
+                t2.mul_add(c(4), ti.mul_add(c(3), c(2))),
+                ti.mul_add(c(1), c(0)),
+            );
+            let d0 = ti.mul_add(p, -lanes.half[i]);
+            let e0 = lanes.mid_e[i] + d0;
             // sin and cos of the start by the addition theorem.
             let (sin_m_x, cos_m_1) = small_sin_cos_deviations(d0);
             let sin_d = d0 + sin_m_x;
-            let s0 = sm[i] + (sm[i] * cos_m_1 + cm[i] * sin_d);
+            let s0 = sm + sm.mul_add(cos_m_1, cm * sin_d);
             // E0 - sin E0 = (Em - sin Em) + d0 (1 - cos Em) - cos Em (sin d - d)
             //   - sin Em (cos d - 1), and 1 - cos E0 = (1 - cos Em)
             //   - (cos Em (cos d - 1) - sin Em sin d): no cancellation as E -> 0.
-            let e_minus_sin = ems[i] + (d0 * omc[i] - cm[i] * sin_m_x - sm[i] * cos_m_1);
-            let one_minus_cos = omc[i] - (cm[i] * cos_m_1 - sm[i] * sin_d);
-            // f0 = E0 - e sin E0 - M and f1 = 1 - e cos E0, in forms that
-            // stay accurate when e -> 1 and E0 -> 0.
-            let f0 = (one_minus_e * e0 + e * e_minus_sin) - m[i];
-            let f1 = one_minus_e + e * one_minus_cos;
-            let sol = correct(e0, s0, 1.0 - one_minus_cos, f0, f1, e);
-            ea[i] = sign[i] * sol.e_anom;
-            se[i] = sign[i] * sol.sin_e;
+            // Near periastron on the corner table (e > 0.8, E < pi/4):
+            // E0 - sin E0 = (Em - sin Em) + d0 (1 - cos Em) - cos Em (sin d - d)
+            //   - sin Em (cos d - 1), and 1 - cos E0 = (1 - cos Em)
+            //   - (cos Em (cos d - 1) - sin Em sin d) have no cancellation as
+            // E -> 0, so f0 = E0 - e sin E0 - M and f1 = 1 - e cos E0 stay
+            // accurate when e -> 1. Elsewhere f1 >= 0.2 (e <= 0.8, or
+            // E >= pi/4), and the plain forms' rounding (~1e-16) costs
+            // nothing. Both are computed and one is selected, so the lanes
+            // stay branch-free (the vector kernel's lanes are never near
+            // periastron, and the compiler drops the first form there).
+            let e_minus_sin =
+                lanes.mid_e_minus_sin[i] + (-sm).mul_add(cos_m_1, d0.mul_add(omc, -(cm * sin_m_x)));
+            let one_minus_cos = omc - cm.mul_add(cos_m_1, -(sm * sin_d));
+            let near = (
+                1.0 - one_minus_cos,
+                one_minus_e.mul_add(e0, e * e_minus_sin) - lanes.m[i],
+                e.mul_add(one_minus_cos, one_minus_e),
+            );
+            let c0 = cm + cm.mul_add(cos_m_1, -(sm * sin_d));
+            let plain = (c0, (-e).mul_add(s0, e0) - lanes.m[i], (-e).mul_add(c0, 1.0));
+            let (c0, f0, f1) = if lanes.near_periastron[i] {
+                near
+            } else {
+                plain
+            };
+            let sol = correct(e0, s0, c0, f0, f1, e);
+            ea[i] = f64::from_bits(sol.e_anom.to_bits() ^ lanes.sign[i]);
+            se[i] = f64::from_bits(sol.sin_e.to_bits() ^ lanes.sign[i]);
             ce[i] = sol.cos_e;
         }
-        for i in 0..L {
-            out[i] = EccentricAnomaly {
-                e_anom: ea[i],
-                sin_e: se[i],
-                cos_e: ce[i],
-            };
+        Solved {
+            e_anom: ea,
+            sin_e: se,
+            cos_e: ce,
         }
-        out
+    }
+}
+
+/// Solutions of L mean anomalies, one array per quantity (how the lanes
+/// compute them, and how a caller that goes on computing lane by lane
+/// wants them).
+pub(crate) struct Solved<const L: usize> {
+    pub e_anom: [f64; L],
+    pub sin_e: [f64; L],
+    pub cos_e: [f64; L],
+}
+
+impl<const L: usize> Solved<L> {
+    #[inline(always)]
+    fn get(&self, i: usize) -> EccentricAnomaly {
+        EccentricAnomaly {
+            e_anom: self.e_anom[i],
+            sin_e: self.sin_e[i],
+            cos_e: self.cos_e[i],
+        }
+    }
+
+    #[inline(always)]
+    fn to_array(&self) -> [EccentricAnomaly; L] {
+        std::array::from_fn(|i| self.get(i))
+    }
+}
+
+/// Values [offset, offset + 4) of four table rows as four columns (a 4x4
+/// transpose in registers: two unpacks and two lane permutes per pair).
+///
+/// # Safety
+/// AVX2 must be present, every row must hold offset + 4 values and be
+/// 32-byte aligned (as [`IntervalRow`] is); inlined into a function compiled
+/// for AVX2.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+unsafe fn columns(rows: &[*const f64; GROUP], offset: usize) -> [[f64; GROUP]; GROUP] {
+    use std::arch::x86_64::*;
+    let a = _mm256_load_pd(rows[0].add(offset));
+    let b = _mm256_load_pd(rows[1].add(offset));
+    let c = _mm256_load_pd(rows[2].add(offset));
+    let d = _mm256_load_pd(rows[3].add(offset));
+    let ab_even = _mm256_unpacklo_pd(a, b);
+    let ab_odd = _mm256_unpackhi_pd(a, b);
+    let cd_even = _mm256_unpacklo_pd(c, d);
+    let cd_odd = _mm256_unpackhi_pd(c, d);
+    std::mem::transmute::<[__m256d; GROUP], [[f64; GROUP]; GROUP]>([
+        _mm256_permute2f128_pd::<0x20>(ab_even, cd_even),
+        _mm256_permute2f128_pd::<0x20>(ab_odd, cd_odd),
+        _mm256_permute2f128_pd::<0x31>(ab_even, cd_even),
+        _mm256_permute2f128_pd::<0x31>(ab_odd, cd_odd),
+    ])
+}
+
+/// The kernel's lanes from four interval rows (see [`columns`]).
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+unsafe fn lanes_from_rows(
+    m: std::arch::x86_64::__m256d,
+    abs: std::arch::x86_64::__m256d,
+    rows: &[*const f64; GROUP],
+    near_periastron: bool,
+) -> Lanes<GROUP> {
+    use std::arch::x86_64::*;
+    let [start, c0, c1, c2] = columns(rows, 0);
+    let [c3, c4, em, sm] = columns(rows, 4);
+    let [cm, ems, omc, half] = columns(rows, 8);
+    Lanes {
+        near_periastron: [near_periastron; GROUP],
+        m: std::mem::transmute::<__m256d, [f64; GROUP]>(abs),
+        sign: std::mem::transmute::<__m256d, [u64; GROUP]>(_mm256_and_pd(m, _mm256_set1_pd(-0.0))),
+        start,
+        coef: [c0, c1, c2, c3, c4],
+        half,
+        mid_e: em,
+        mid_sin: sm,
+        mid_cos: cm,
+        mid_e_minus_sin: ems,
+        mid_one_minus_cos: omc,
+    }
+}
+
+/// Per lane, how many of the ascending `ends` are at or below `x` (each
+/// true compare is -1; four partial sums keep the chain of additions
+/// short, as the solve is latency-bound).
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+unsafe fn count_at_or_below(x: std::arch::x86_64::__m256d, ends: &[f64]) -> [u64; GROUP] {
+    use std::arch::x86_64::*;
+    let mut partial = [_mm256_setzero_si256(); 4];
+    for (j, &end) in ends.iter().enumerate() {
+        let ge = _mm256_cmp_pd::<_CMP_GE_OQ>(x, _mm256_set1_pd(end));
+        partial[j % 4] = _mm256_sub_epi64(partial[j % 4], _mm256_castpd_si256(ge));
+    }
+    let count = _mm256_add_epi64(
+        _mm256_add_epi64(partial[0], partial[1]),
+        _mm256_add_epi64(partial[2], partial[3]),
+    );
+    let mut k = [0u64; GROUP];
+    _mm256_storeu_si256(k.as_mut_ptr().cast(), count);
+    k
+}
+
+/// [`reduce_mean_anomaly`] on four values at once: the same IEEE
+/// operations in the same order, so the same results.
+#[cfg(target_arch = "x86_64")]
+#[inline(always)]
+unsafe fn reduce_mean_anomaly_avx2(m: std::arch::x86_64::__m256d) -> std::arch::x86_64::__m256d {
+    use std::arch::x86_64::*;
+    // For |M| <= pi the reduction is exactly the identity (M / 2pi rounds
+    // to k = +0; at M = pi the product is exactly 0.5, which rounds to
+    // even, 0), and callers mostly pass reduced values: skip its latency.
+    let abs = _mm256_andnot_pd(_mm256_set1_pd(-0.0), m);
+    if _mm256_movemask_pd(_mm256_cmp_pd::<_CMP_LE_OQ>(abs, _mm256_set1_pd(PI))) == 0b1111 {
+        return m;
+    }
+    let magic = _mm256_set1_pd(ROUND_MAGIC);
+    let k = _mm256_sub_pd(
+        _mm256_add_pd(_mm256_mul_pd(m, _mm256_set1_pd(0.5 / PI)), magic),
+        magic,
+    );
+    let r = _mm256_sub_pd(m, _mm256_mul_pd(k, _mm256_set1_pd(TWO_PI_1)));
+    let r = _mm256_sub_pd(r, _mm256_mul_pd(k, _mm256_set1_pd(TWO_PI_2)));
+    _mm256_sub_pd(r, _mm256_mul_pd(k, _mm256_set1_pd(TWO_PI_3)))
+}
+
+/// Lanes of the AVX2 kernel (one 256-bit register of f64).
+const GROUP: usize = 4;
+/// The sign bit of an f64.
+const SIGN_BIT: u64 = 1 << 63;
+
+/// True when the processor has AVX2 and FMA (cached by the standard library).
+#[cfg(target_arch = "x86_64")]
+#[inline]
+pub(crate) fn has_avx2_fma() -> bool {
+    std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
+}
+
+/// Per-lane inputs of [`KeplerSolver::refine`]: |M|, the sign bit of M,
+/// and the data of the lane's interval.
+struct Lanes<const L: usize> {
+    /// Lanes on the near-periastron corner table (e > 0.8, E < pi/4).
+    near_periastron: [bool; L],
+    m: [f64; L],
+    sign: [u64; L],
+    start: [f64; L],
+    coef: [[f64; L]; 5],
+    half: [f64; L],
+    mid_e: [f64; L],
+    mid_sin: [f64; L],
+    mid_cos: [f64; L],
+    mid_e_minus_sin: [f64; L],
+    mid_one_minus_cos: [f64; L],
+}
+
+impl<const L: usize> Default for Lanes<L> {
+    fn default() -> Self {
+        Self {
+            near_periastron: [false; L],
+            m: [0.0; L],
+            sign: [0; L],
+            start: [0.0; L],
+            coef: [[0.0; L]; 5],
+            half: [0.0; L],
+            mid_e: [0.0; L],
+            mid_sin: [0.0; L],
+            mid_cos: [0.0; L],
+            mid_e_minus_sin: [0.0; L],
+            mid_one_minus_cos: [0.0; L],
+        }
     }
 }
 
@@ -572,16 +865,16 @@ impl KeplerSolver {
 fn correct(e0: f64, s0: f64, c0: f64, f0: f64, f1: f64, e: f64) -> EccentricAnomaly {
     let f2 = e * s0;
     let f3 = e * c0;
-    let num = f0 * (f1 * f1 - 0.5 * f0 * f2);
-    let den = f1 * (f1 * f1 - f0 * f2) + f0 * f0 * f3 * (1.0 / 6.0);
+    let num = f0 * f1.mul_add(f1, -0.5 * f0 * f2);
+    let den = f1.mul_add(f1.mul_add(f1, -(f0 * f2)), f0 * f0 * f3 * (1.0 / 6.0));
     let d = -num / den;
     let d2 = d * d;
-    let sin_d = d - d * d2 * (1.0 / 6.0);
+    let sin_d = (d * d2).mul_add(-1.0 / 6.0, d);
     let cos_d_m1 = -0.5 * d2;
     EccentricAnomaly {
         e_anom: e0 + d,
-        sin_e: s0 + (s0 * cos_d_m1 + c0 * sin_d),
-        cos_e: c0 + (c0 * cos_d_m1 - s0 * sin_d),
+        sin_e: s0 + s0.mul_add(cos_d_m1, c0 * sin_d),
+        cos_e: c0 + c0.mul_add(cos_d_m1, -(s0 * sin_d)),
     }
 }
 
@@ -591,11 +884,17 @@ fn correct(e0: f64, s0: f64, c0: f64, f0: f64, f1: f64, e: f64) -> EccentricAnom
 fn small_sin_cos_deviations(x: f64) -> (f64, f64) {
     let z = x * x;
     let z2 = z * z;
-    let sin_m_x =
-        -x * z * ((1.0 / 6.0 - z * (1.0 / 120.0)) + z2 * (1.0 / 5040.0 - z * (1.0 / 362_880.0)));
+    let sin_m_x = -x
+        * z
+        * z2.mul_add(
+            z.mul_add(-1.0 / 362_880.0, 1.0 / 5040.0),
+            z.mul_add(-1.0 / 120.0, 1.0 / 6.0),
+        );
     let cos_m_1 = -z
-        * ((0.5 - z * (1.0 / 24.0))
-            + z2 * ((1.0 / 720.0 - z * (1.0 / 40_320.0)) + z2 * (1.0 / 3_628_800.0)));
+        * z2.mul_add(
+            z2.mul_add(1.0 / 3_628_800.0, z.mul_add(-1.0 / 40_320.0, 1.0 / 720.0)),
+            z.mul_add(-1.0 / 24.0, 0.5),
+        );
     (sin_m_x, cos_m_1)
 }
 
@@ -770,6 +1069,41 @@ mod tests {
             }
         }
         assert!(worst < 1e-15, "worst residual {worst:e}");
+    }
+
+    /// The AVX2 kernel (taken by `solve_many` on this machine when the
+    /// processor has AVX2 and FMA) and the portable lane code give the same
+    /// bits, for every length (partial groups), corner and non-corner
+    /// eccentricities, negative zero, M = +-pi and unreduced M.
+    #[test]
+    fn vector_kernel_equals_portable_path() {
+        let mut ms: Vec<f64> = (0..203)
+            .map(|k| -7.0 + 14.0 * ((k as f64 + 0.5) * 0.618_033_988_749_894_9).fract())
+            .collect();
+        ms.extend([0.0, -0.0, PI, -PI, 1e-9, -1e-300, 0.05, 3.0, 1e4]);
+        ms.extend((0..40).map(|k| (k as f64 - 20.0) * 0.003));
+        let blank = EccentricAnomaly {
+            e_anom: 0.0,
+            sin_e: 0.0,
+            cos_e: 1.0,
+        };
+        let bits = |v: &[EccentricAnomaly]| -> Vec<[u64; 3]> {
+            v.iter()
+                .map(|a| [a.e_anom.to_bits(), a.sin_e.to_bits(), a.cos_e.to_bits()])
+                .collect()
+        };
+        for &e in &[0.0, 0.3, 0.8, 0.81, 0.95, 0.999, 0.999_999] {
+            let solver = KeplerSolver::new(e).unwrap();
+            for len in [0, 1, 3, 4, 5, 7, 8, 9, ms.len()] {
+                let mut fast = vec![blank; len];
+                let mut portable = vec![blank; len];
+                solver.solve_many(&ms[..len], &mut fast);
+                solver.solve_many_portable(&ms[..len], &mut portable);
+                assert_eq!(bits(&fast), bits(&portable), "e = {e}, {len} values");
+                let one_by_one: Vec<_> = ms[..len].iter().map(|&m| solver.solve(m)).collect();
+                assert_eq!(bits(&fast), bits(&one_by_one), "e = {e}, {len} values");
+            }
+        }
     }
 }
 

@@ -18,7 +18,7 @@
 
 use crate::elements::{CampbellElements, ThieleInnes};
 use crate::error::OrbitError;
-use crate::kepler::{EccentricAnomaly, KeplerSolver, LANES};
+use crate::kepler::{EccentricAnomaly, KeplerSolver, Solved, LANES};
 use std::f64::consts::TAU;
 
 /// Offset of the secondary from the primary on the sky.
@@ -170,17 +170,25 @@ impl Orbit {
     /// Position and velocity shape for a given eccentric anomaly.
     #[inline(always)]
     pub fn state_from_anomaly(&self, ea: &EccentricAnomaly) -> OrbitState {
+        self.state_from_sin_cos(ea.sin_e, ea.cos_e)
+    }
+
+    /// The same from sin E and cos E (products fused with `mul_add`,
+    /// exactly rounded on any processor, so every path agrees bit for bit).
+    #[inline(always)]
+    fn state_from_sin_cos(&self, sin_e: f64, cos_e: f64) -> OrbitState {
         let e = self.elements.e;
         // Elliptic rectangular coordinates in the orbital plane (units of a).
-        let x = ea.cos_e - e;
-        let y = self.sqrt_1me2 * ea.sin_e;
+        let x = cos_e - e;
+        let y = self.sqrt_1me2 * sin_e;
         let ti = &self.thiele_innes;
         // r/a = 1 - e cos E; cos nu = x / (r/a), sin nu = y / (r/a).
-        let r_over_a = 1.0 - e * ea.cos_e;
-        let rv_shape = (x * self.cos_omega - y * self.sin_omega) / r_over_a + self.e_cos_omega;
+        let r_over_a = (-e).mul_add(cos_e, 1.0);
+        let rv_shape =
+            x.mul_add(self.cos_omega, -(y * self.sin_omega)) / r_over_a + self.e_cos_omega;
         OrbitState {
-            dra: ti.b * x + ti.g * y,
-            ddec: ti.a * x + ti.f * y,
+            dra: ti.b.mul_add(x, ti.g * y),
+            ddec: ti.a.mul_add(x, ti.f * y),
             rv_shape,
         }
     }
@@ -192,24 +200,33 @@ impl Orbit {
     /// them.
     pub fn states_into(&self, times_jd: &[f64], out: &mut [OrbitState]) {
         #[cfg(target_arch = "x86_64")]
-        if std::arch::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor supports AVX2, checked just above.
+        if crate::kepler::has_avx2_fma() {
+            // SAFETY: the processor has AVX2 and FMA, checked just above.
             unsafe { self.states_into_avx2(times_jd, out) };
             return;
         }
-        self.states_into_portable(times_jd, out);
+        self.states_into_portable(times_jd, out, |m| self.solver.solve_lanes(m));
     }
 
-    /// [`Orbit::states_into`] compiled for AVX2; same IEEE operations in the
-    /// same order, so bit-for-bit the same results as the portable path.
+    /// [`Orbit::states_into`] with the solver's AVX2 kernel; the same
+    /// operations in the same order, so bit-for-bit the same results as the
+    /// portable path.
     #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx2")]
+    #[target_feature(enable = "avx2,fma")]
     unsafe fn states_into_avx2(&self, times_jd: &[f64], out: &mut [OrbitState]) {
-        self.states_into_portable(times_jd, out);
+        // SAFETY: this function only runs where AVX2 and FMA are present.
+        self.states_into_portable(times_jd, out, |m| unsafe {
+            self.solver.solve_lanes_avx2(m)
+        });
     }
 
     #[inline(always)]
-    fn states_into_portable(&self, times_jd: &[f64], out: &mut [OrbitState]) {
+    fn states_into_portable(
+        &self,
+        times_jd: &[f64],
+        out: &mut [OrbitState],
+        solve_lanes: impl Fn(&[f64; LANES]) -> Solved<LANES>,
+    ) {
         let n = times_jd.len().min(out.len());
         let (times, out) = (&times_jd[..n], &mut out[..n]);
         let mut t_chunks = times.chunks_exact(LANES);
@@ -219,17 +236,22 @@ impl Orbit {
             for (mi, &t) in m.iter_mut().zip(tc) {
                 *mi = self.mean_anomaly(t);
             }
-            let ea = self.solver.solve_lanes(&m);
-            for (o, a) in oc.iter_mut().zip(&ea) {
-                *o = self.state_from_anomaly(a);
+            let ea = solve_lanes(&m);
+            for (i, o) in oc.iter_mut().enumerate() {
+                *o = self.state_from_sin_cos(ea.sin_e[i], ea.cos_e[i]);
             }
         }
-        for (o, &t) in o_chunks
-            .into_remainder()
-            .iter_mut()
-            .zip(t_chunks.remainder())
-        {
-            *o = self.state(t);
+        // The last partial group, padded with M = 0 (results dropped).
+        let rest = t_chunks.remainder();
+        if !rest.is_empty() {
+            let mut m = [0.0; LANES];
+            for (mi, &t) in m.iter_mut().zip(rest) {
+                *mi = self.mean_anomaly(t);
+            }
+            let ea = solve_lanes(&m);
+            for (i, o) in o_chunks.into_remainder().iter_mut().enumerate() {
+                *o = self.state_from_sin_cos(ea.sin_e[i], ea.cos_e[i]);
+            }
         }
     }
 }
