@@ -6,10 +6,10 @@
 //! returning sin E and cos E that agree with `f64::sin`/`f64::cos` of the
 //! returned E to 1e-15:
 //!
-//! - [`KeplerSolver`]: built once per eccentricity (tables, ~0.3 us), then
-//!   fast: a polynomial start and one correction, no libm call; use
+//! - [`KeplerSolver`]: built once per eccentricity (tables, ~0.2 us), then
+//!   fast: a polynomial start and one correction, no trigonometric call; use
 //!   [`KeplerSolver::solve_many`] (or [`crate::Orbit::states_into`]) for many
-//!   mean anomalies, which runs groups of [`LANES`] in vector registers.
+//!   mean anomalies, which runs groups in vector registers.
 //!   See its docs for the method and PERFORMANCE.md for measured speed.
 //! - [`solve_kepler`]: no set-up, for one-off solves: the starting value of
 //!   F. L. Markley, "Kepler equation solver", Celestial Mechanics and
@@ -319,8 +319,12 @@ impl CornerTable {
 /// Measured accuracy: |E - e sin E - M| <= 4e-15 rad over dense grids for
 /// 0 <= e <= 1 - 1e-12 (see the crate tests).
 ///
-/// The tables make the solver about 5 KB; [`KeplerSolver::new`] takes
-/// ~0.3 us (measured, PERFORMANCE.md), the time of ~20 batch solves.
+/// The tables make the solver about 6 KB (1.6 KB used when e <= 0.8);
+/// [`KeplerSolver::new`] takes ~0.2 us (measured, PERFORMANCE.md), the
+/// time of ~30 batch solves. With AVX2 and FMA (checked at run time) the
+/// batch path runs a vector kernel; every path fuses the same products
+/// with `f64::mul_add` (exactly rounded everywhere), so results are the
+/// same bits on any processor.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct KeplerSolver {
     e: f64,
@@ -537,9 +541,9 @@ impl KeplerSolver {
     /// The vector kernel: the interval count and the table rows go straight
     /// into registers (rows are loaded four values at a time and
     /// transposed), then the lane arithmetic shared with the portable path
-    /// ([`Self::refine`]) runs on them, so both give the same bits. Groups
-    /// with a lane in the near-periastron corner table (e > 0.8, E < pi/4)
-    /// take the portable lane code.
+    /// ([`Self::refine`]) runs on them, so both give the same bits. Lanes
+    /// near periastron at high e (e > 0.8, E < pi/4) take their rows from
+    /// the corner table, found by a second count.
     #[cfg(target_arch = "x86_64")]
     #[inline(always)]
     unsafe fn solve_group_avx2(&self, mean_anomaly: std::arch::x86_64::__m256d) -> Solved<GROUP> {
