@@ -29,6 +29,8 @@ pub(crate) enum Stream {
     Start { rung: usize },
     /// Swaps between temperatures.
     Swaps,
+    /// The random split of temperature `rung` into halves at step `step`.
+    Split { rung: usize, step: u64 },
 }
 
 impl Stream {
@@ -37,6 +39,10 @@ impl Stream {
             Stream::Walker { rung, walker } => ((rung as u64) << 32) | (walker as u64),
             Stream::Start { rung } => (1u64 << 62) | rung as u64,
             Stream::Swaps => 1u64 << 63,
+            // Bit 61 apart from the others (walker ids stay below 2^61).
+            Stream::Split { rung, step } => {
+                (1u64 << 61) | ((rung as u64) << 40) | (step & ((1u64 << 40) - 1))
+            }
         }
     }
 }

@@ -336,7 +336,7 @@ impl State {
                     longest_rejection_run: 0,
                 })
                 .collect();
-            rungs.push(Rung { beta, walkers });
+            rungs.push(Rung::new(beta, walkers));
         }
         let mut ladder = Ladder::new(n_temps, nw);
         if config
@@ -625,9 +625,8 @@ fn blank_state(config: &RunConfig, dim: usize) -> State {
     let nw = config.n_walkers;
     let n_temps = config.n_temperatures();
     let rungs = (0..n_temps)
-        .map(|r| Rung {
-            beta: 1.0,
-            walkers: (0..nw)
+        .map(|r| {
+            let walkers = (0..nw)
                 .map(|w| Walker {
                     position: vec![0.0; dim],
                     log_prior: 0.0,
@@ -639,7 +638,8 @@ fn blank_state(config: &RunConfig, dim: usize) -> State {
                     rejection_run: 0,
                     longest_rejection_run: 0,
                 })
-                .collect(),
+                .collect();
+            Rung::new(1.0, walkers)
         })
         .collect();
     State {
@@ -749,6 +749,7 @@ fn drive_steps<D: LogDensity + ?Sized>(
             &config.moves,
             if timing { Schedule::Serial } else { schedule },
             team,
+            (config.seed, state.step),
         );
         if timing {
             let per_walker = t_step.elapsed().as_nanos() as f64 / (n_temps * nw) as f64;

@@ -20,7 +20,7 @@ use std::thread::{self, Scope, Thread};
 use std::time::{Duration, Instant};
 
 use crate::density::LogDensity;
-use crate::ensemble::{Rung, Walker};
+use crate::ensemble::{EnsembleView, Rung, Walker};
 use crate::moves::MoveMixture;
 
 /// Tag of the ticket that tells helpers to leave.
@@ -58,8 +58,10 @@ pub(crate) struct Team {
     half: AtomicUsize,
     total: AtomicUsize,
     chunk: AtomicUsize,
-    /// Per rung: its walkers and its inverse temperature (as bits).
+    /// Per rung: its walkers, this step's split and its inverse
+    /// temperature (as bits).
     walkers: Vec<AtomicPtr<Walker>>,
+    orders: Vec<AtomicPtr<usize>>,
     betas: Vec<AtomicU64>,
     pending: AtomicUsize,
     sleeping: Vec<AtomicBool>,
@@ -85,6 +87,9 @@ impl Team {
             total: AtomicUsize::new(0),
             chunk: AtomicUsize::new(1),
             walkers: (0..n_rungs)
+                .map(|_| AtomicPtr::new(std::ptr::null_mut()))
+                .collect(),
+            orders: (0..n_rungs)
                 .map(|_| AtomicPtr::new(std::ptr::null_mut()))
                 .collect(),
             betas: (0..n_rungs).map(|_| AtomicU64::new(0)).collect(),
@@ -150,9 +155,12 @@ impl Team {
         if total == 0 {
             return;
         }
-        for ((r, ptr), beta) in rungs.iter_mut().zip(&self.walkers).zip(&self.betas) {
-            ptr.store(r.walkers.as_mut_ptr(), Ordering::Relaxed);
-            beta.store(r.beta.to_bits(), Ordering::Relaxed);
+        for (k, r) in rungs.iter_mut().enumerate() {
+            let view = r.view();
+            self.walkers[k].store(view.walkers, Ordering::Relaxed);
+            // Helpers only read the split (AtomicPtr holds *mut).
+            self.orders[k].store(view.order.cast_mut(), Ordering::Relaxed);
+            self.betas[k].store(view.beta.to_bits(), Ordering::Relaxed);
         }
         self.part.store(part, Ordering::Relaxed);
         self.half.store(half, Ordering::Relaxed);
@@ -217,14 +225,16 @@ impl Team {
             let guard = PanicFlag(&self.panicked);
             for index in start as usize..end {
                 let (r, w) = (index / half, index % half);
-                let base = self.walkers[r].load(Ordering::Relaxed);
-                let beta = f64::from_bits(self.betas[r].load(Ordering::Relaxed));
-                let (active, other) = if part == 0 { (w, half) } else { (half + w, 0) };
-                // SAFETY: walker `active` is claimed by this thread alone;
-                // the complementary half is only read during the half-step.
-                let complement = std::slice::from_raw_parts(base.add(other), half);
-                let walker = &mut *base.add(active);
-                walker.advance(complement, moves, density, beta);
+                let view = EnsembleView {
+                    walkers: self.walkers[r].load(Ordering::Relaxed),
+                    order: self.orders[r].load(Ordering::Relaxed),
+                    half,
+                    beta: f64::from_bits(self.betas[r].load(Ordering::Relaxed)),
+                };
+                // SAFETY: walker (r, w) of the active half is claimed by
+                // this thread alone; the other half is only read during the
+                // half-step.
+                view.advance(part, w, moves, density);
             }
             std::mem::forget(guard);
             self.pending
@@ -302,21 +312,23 @@ mod tests {
     /// Three rungs of 12 walkers in 3-D, spread deterministically.
     fn rungs() -> Vec<Rung> {
         (0..3)
-            .map(|r| Rung {
-                beta: [1.0, 0.5, 0.2][r],
-                walkers: (0..12)
-                    .map(|w| Walker {
-                        position: (0..3).map(|k| ((w * 3 + k) as f64 * 0.37).sin()).collect(),
-                        log_prior: 0.0,
-                        log_likelihood: f64::NEG_INFINITY,
-                        rng: stream_rng(9, Stream::Walker { rung: r, walker: w }),
-                        scratch: Scratch::new(3, 6),
-                        accepted: 0,
-                        proposed: 0,
-                        rejection_run: 0,
-                        longest_rejection_run: 0,
-                    })
-                    .collect(),
+            .map(|r| {
+                Rung::new(
+                    [1.0, 0.5, 0.2][r],
+                    (0..12)
+                        .map(|w| Walker {
+                            position: (0..3).map(|k| ((w * 3 + k) as f64 * 0.37).sin()).collect(),
+                            log_prior: 0.0,
+                            log_likelihood: f64::NEG_INFINITY,
+                            rng: stream_rng(9, Stream::Walker { rung: r, walker: w }),
+                            scratch: Scratch::new(3, 6),
+                            accepted: 0,
+                            proposed: 0,
+                            rejection_run: 0,
+                            longest_rejection_run: 0,
+                        })
+                        .collect(),
+                )
             })
             .collect()
     }
@@ -339,8 +351,15 @@ mod tests {
         let moves = MoveMixture::new(vec![(Move::stretch(), 0.6), (Move::walk(), 0.4)]).unwrap();
         let mut serial = rungs();
         let alone = Team::new(0, 3);
-        for _ in 0..50 {
-            step_all(&mut serial, &density, &moves, Schedule::Serial, &alone);
+        for step in 0..50 {
+            step_all(
+                &mut serial,
+                &density,
+                &moves,
+                Schedule::Serial,
+                &alone,
+                (5, step),
+            );
         }
         for (helpers, chunk) in [(1, 1), (1, 5), (3, 2), (3, 40)] {
             let mut shared = rungs();
@@ -348,13 +367,14 @@ mod tests {
             thread::scope(|scope| {
                 team.start(scope, &density, &moves);
                 let _stop = StopOnDrop(&team);
-                for _ in 0..50 {
+                for step in 0..50 {
                     step_all(
                         &mut shared,
                         &density,
                         &moves,
                         Schedule::Parallel { chunk },
                         &team,
+                        (5, step),
                     );
                 }
             });
