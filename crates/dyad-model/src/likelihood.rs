@@ -471,6 +471,8 @@ fn residual_angle(y: f64, x: f64) -> f64 {
 /// the platform's atan to 1 ulp in this module's tests), split into even
 /// and odd parts as fdlibm does.
 #[inline(always)]
+// The digits as published in fdlibm.
+#[allow(clippy::excessive_precision)]
 fn atan_small(a: f64) -> f64 {
     const AT: [f64; 11] = [
         3.333_333_333_333_293_180_27e-1,
