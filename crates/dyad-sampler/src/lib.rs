@@ -10,10 +10,11 @@
 //! - [`Move`] and [`MoveMixture`]: the stretch move of Goodman & Weare (2010,
 //!   CAMCoS 5, 65), the differential-evolution move (ter Braak 2006; Nelson
 //!   et al. 2014) and the walk move (Goodman & Weare 2010), mixed by weight.
-//!   Each half of the ensemble is updated in parallel against the other half
-//!   (Foreman-Mackey et al. 2013, PASP 125, 306). Every walker has its own
-//!   Xoshiro256++ stream, so the chain depends on the seed only, never on the
-//!   number of threads.
+//!   The walkers are split into two random halves every step and each half
+//!   is updated in parallel against the other (Foreman-Mackey et al. 2013,
+//!   PASP 125, 306), by a team of helper threads that stays awake for the
+//!   run. Every walker has its own Xoshiro256++ stream, so the chain
+//!   depends on the seed only, never on the number of threads.
 //! - [`Start`]: a ball around a point, user draws, or explicit positions,
 //!   checked by [`check_initial_ensemble`].
 //! - [`RunConfig`], [`run`] and [`resume`]: the run loop, with the
