@@ -561,16 +561,13 @@ impl KeplerSolver {
                         self.rows[k[i] as usize & (INTERVALS - 1)].0.as_ptr()
                     }
                 });
-                let mut lanes = lanes_from_rows(mean_anomaly, abs, &rows, true);
-                if near != [true; GROUP] {
-                    // A group across the corner table's edge.
-                    lanes.near_periastron = near;
-                }
-                self.refine(&lanes)
+                // Mixed groups (across the corner table's edge) are fine:
+                // each lane keeps its own row and form.
+                self.refine(&lanes_from_rows(mean_anomaly, abs, &rows, near))
             }
             _ => {
                 let rows = k.map(|k| self.rows[k as usize & (INTERVALS - 1)].0.as_ptr());
-                self.refine(&lanes_from_rows(mean_anomaly, abs, &rows, false))
+                self.refine(&lanes_from_rows(mean_anomaly, abs, &rows, [false; GROUP]))
             }
         }
     }
@@ -747,14 +744,14 @@ unsafe fn lanes_from_rows(
     m: std::arch::x86_64::__m256d,
     abs: std::arch::x86_64::__m256d,
     rows: &[*const f64; GROUP],
-    near_periastron: bool,
+    near_periastron: [bool; GROUP],
 ) -> Lanes<GROUP> {
     use std::arch::x86_64::*;
     let [start, c0, c1, c2] = columns(rows, 0);
     let [c3, c4, em, sm] = columns(rows, 4);
     let [cm, ems, omc, half] = columns(rows, 8);
     Lanes {
-        near_periastron: [near_periastron; GROUP],
+        near_periastron,
         m: std::mem::transmute::<__m256d, [f64; GROUP]>(abs),
         sign: std::mem::transmute::<__m256d, [u64; GROUP]>(_mm256_and_pd(m, _mm256_set1_pd(-0.0))),
         start,
