@@ -334,7 +334,7 @@ pub struct KeplerSolver {
     corner: Option<CornerTable>,
     /// M at the interval ends E_k = k pi/16, k = 0..=16.
     m_ends: [f64; INTERVALS + 1],
-    /// Per interval k, everything a solve reads, in one row (see [`Row`]).
+    /// Per interval k, everything a solve reads, in one row (see [`IntervalRow`]).
     rows: [IntervalRow; INTERVALS],
 }
 
