@@ -644,9 +644,6 @@ impl KeplerSolver {
             let (sin_m_x, cos_m_1) = small_sin_cos_deviations(d0);
             let sin_d = d0 + sin_m_x;
             let s0 = sm + sm.mul_add(cos_m_1, cm * sin_d);
-            // E0 - sin E0 = (Em - sin Em) + d0 (1 - cos Em) - cos Em (sin d - d)
-            //   - sin Em (cos d - 1), and 1 - cos E0 = (1 - cos Em)
-            //   - (cos Em (cos d - 1) - sin Em sin d): no cancellation as E -> 0.
             // Near periastron on the corner table (e > 0.8, E < pi/4):
             // E0 - sin E0 = (Em - sin Em) + d0 (1 - cos Em) - cos Em (sin d - d)
             //   - sin Em (cos d - 1), and 1 - cos E0 = (1 - cos Em)
@@ -655,8 +652,8 @@ impl KeplerSolver {
             // accurate when e -> 1. Elsewhere f1 >= 0.2 (e <= 0.8, or
             // E >= pi/4), and the plain forms' rounding (~1e-16) costs
             // nothing. Both are computed and one is selected, so the lanes
-            // stay branch-free (the vector kernel's lanes are never near
-            // periastron, and the compiler drops the first form there).
+            // stay branch-free (where the flags are constants, as for groups
+            // away from the corner table, the compiler drops the unused form).
             let e_minus_sin =
                 lanes.mid_e_minus_sin[i] + (-sm).mul_add(cos_m_1, d0.mul_add(omc, -(cm * sin_m_x)));
             let one_minus_cos = omc - cm.mul_add(cos_m_1, -(sm * sin_d));

@@ -14,7 +14,7 @@
 //! owns its random stream and the complementary half is read-only during a
 //! half-step.
 
-use std::sync::atomic::{AtomicBool, AtomicPtr, AtomicU64, AtomicUsize, Ordering};
+use std::sync::atomic::{AtomicBool, AtomicPtr, AtomicU32, AtomicU64, AtomicUsize, Ordering};
 use std::sync::OnceLock;
 use std::thread::{self, Scope, Thread};
 use std::time::{Duration, Instant};
@@ -53,7 +53,7 @@ pub(crate) struct Team {
     helpers: usize,
     ticket: AtomicU64,
     /// Leader-only: tag of the last published half-step.
-    last_tag: AtomicU64,
+    last_tag: AtomicU32,
     part: AtomicUsize,
     half: AtomicUsize,
     total: AtomicUsize,
@@ -81,7 +81,7 @@ impl Team {
         Self {
             helpers,
             ticket: AtomicU64::new(pack(0, CLOSED)),
-            last_tag: AtomicU64::new(0),
+            last_tag: AtomicU32::new(0),
             part: AtomicUsize::new(0),
             half: AtomicUsize::new(0),
             total: AtomicUsize::new(0),
@@ -167,11 +167,11 @@ impl Team {
         self.total.store(total, Ordering::Relaxed);
         self.chunk.store(chunk.max(1), Ordering::Relaxed);
         self.pending.store(total, Ordering::Relaxed);
-        let mut tag = (self.last_tag.load(Ordering::Relaxed) as u32).wrapping_add(1);
+        let mut tag = self.last_tag.load(Ordering::Relaxed).wrapping_add(1);
         if tag == STOP_TAG {
             tag = 0;
         }
-        self.last_tag.store(u64::from(tag), Ordering::Relaxed);
+        self.last_tag.store(tag, Ordering::Relaxed);
         self.ticket.store(pack(tag, 0), Ordering::SeqCst);
         self.wake_all(false);
 
