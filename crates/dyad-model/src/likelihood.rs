@@ -22,12 +22,17 @@
 //! and v2 = gamma + K2 * shape.
 //!
 //! Nothing is allocated per call: inverse covariances and normalising
-//! constants are computed once in [`Model::new`].
+//! constants are computed once in [`Model::new`]. The data are stored one
+//! array per quantity and evaluated [`LANES`] epochs at a time, straight
+//! from the Kepler solver's arrays ([`Orbit::for_each_block`]), so the
+//! arithmetic after the solve vectorises; velocities of both stars taken
+//! by one instrument at one epoch share one solve.
 
-use std::f64::consts::{PI, TAU};
+use std::collections::HashMap;
+use std::f64::consts::{LN_2, PI, TAU};
 
-use dyad_orbit::kepler::{EccentricAnomaly, KeplerSolver, LANES};
-use dyad_orbit::{laws, velocity, CampbellElements, ThieleInnes};
+use dyad_orbit::kepler::LANES;
+use dyad_orbit::{laws, velocity, BlockVisitor, Orbit};
 
 use crate::config::RunConfig;
 use crate::data::{Dataset, RelativePosition, Star};
@@ -37,48 +42,86 @@ use crate::params::{FitMode, ModelPriors, OrbitalParameters, ParameterLayout};
 /// ln(2 pi).
 const LN_2PI: f64 = 1.837_877_066_409_345_5;
 
-/// What an astrometric epoch measured.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) enum Measured {
-    /// Separation (mas) and the sine and cosine of the position angle.
-    Polar {
-        sep_mas: f64,
-        sin_pa: f64,
-        cos_pa: f64,
-    },
-    /// dRA* and dDec (mas).
-    Cartesian { dra_mas: f64, ddec_mas: f64 },
+/// Inverse covariances (c11, 2 c12, c22) of the residual pairs of a set of
+/// astrometric epochs, one array each (zero in the padding).
+#[derive(Debug, Clone, Default, PartialEq)]
+struct InverseCovariances {
+    c11: Vec<f64>,
+    c12_twice: Vec<f64>,
+    c22: Vec<f64>,
 }
 
-/// One astrometric epoch ready for evaluation (its epoch is in
-/// `Model::astrometry_times`).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct AstrometryTerm {
-    pub measured: Measured,
-    /// Inverse covariance (c11, c12, c22) of the residual pair.
-    pub inv: [f64; 3],
+impl InverseCovariances {
+    fn push(&mut self, [c11, c12, c22]: [f64; 3]) {
+        self.c11.push(c11);
+        self.c12_twice.push(2.0 * c12);
+        self.c22.push(c22);
+    }
+
+    fn pad(&mut self) {
+        for v in [&mut self.c11, &mut self.c12_twice, &mut self.c22] {
+            pad_to_lanes(v, 0.0);
+        }
+    }
+
+    /// c11 r1^2 + 2 c12 r1 r2 + c22 r2^2 of epoch `k`.
+    #[inline(always)]
+    fn quadratic_form(&self, k: usize, r1: f64, r2: f64) -> f64 {
+        self.c11[k] * r1 * r1 + self.c12_twice[k] * r1 * r2 + self.c22[k] * r2 * r2
+    }
 }
 
-/// One velocity ready for evaluation (its epoch is in `Model::velocity_times`).
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct VelocityTerm {
-    pub rv_kms: f64,
-    pub err_sq: f64,
-    /// ln(2 pi err^2), used when the jitter is zero.
-    pub ln_2pi_err_sq: f64,
-    pub instrument: usize,
-    pub star: Star,
+/// Polar astrometric epochs (separation and position angle), one array per
+/// quantity; all but `t` padded with zero-weight entries to a whole number
+/// of blocks of [`LANES`].
+#[derive(Debug, Clone, Default, PartialEq)]
+struct PolarEpochs {
+    t: Vec<f64>,
+    sep_mas: Vec<f64>,
+    sin_pa: Vec<f64>,
+    cos_pa: Vec<f64>,
+    inv: InverseCovariances,
 }
 
-/// The velocities of one star from one instrument: they share an offset,
-/// a jitter and an amplitude, computed once per evaluation.
+/// Cartesian astrometric epochs (dRA*, dDec), stored as [`PolarEpochs`].
+#[derive(Debug, Clone, Default, PartialEq)]
+struct CartesianEpochs {
+    t: Vec<f64>,
+    dra_mas: Vec<f64>,
+    ddec_mas: Vec<f64>,
+    inv: InverseCovariances,
+}
+
+/// Velocity epochs: the velocities one instrument took at one instant, of
+/// the primary (slot 0), the secondary (slot 1) or both, so that a
+/// double-lined spectrum costs one Kepler solve. An empty slot has weight 0
+/// (and error 1 so that its variance stays a normal number). The epochs of
+/// each instrument form one segment, padded to a whole number of blocks of
+/// [`LANES`].
+#[derive(Debug, Clone, Default, PartialEq)]
+struct VelocityEpochs {
+    segments: Vec<InstrumentSegment>,
+    t: Vec<f64>,
+    rv_kms: [Vec<f64>; 2],
+    err_sq: [Vec<f64>; 2],
+    weight: [Vec<f64>; 2],
+    /// Number of velocities (filled slots).
+    count: usize,
+}
+
+/// The epochs of one instrument in [`VelocityEpochs`]: `len` epochs from
+/// index `start`.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) struct VelocityGroup {
-    pub instrument: usize,
-    pub star: Star,
-    /// Range of this group in `velocities` and `velocity_times`.
-    pub start: usize,
-    pub end: usize,
+struct InstrumentSegment {
+    instrument: usize,
+    start: usize,
+    len: usize,
+}
+
+/// Pads `v` with `value` to a whole number of blocks of [`LANES`].
+fn pad_to_lanes<T: Copy>(v: &mut Vec<T>, value: T) {
+    let n = v.len().div_ceil(LANES) * LANES;
+    v.resize(n, value);
 }
 
 /// Inverse of the 2x2 covariance of errors (s1, s2) with correlation c, and
@@ -120,13 +163,9 @@ pub fn wrap_angle(d: f64) -> f64 {
 pub struct Model {
     layout: ParameterLayout,
     dataset: Dataset,
-    astrometry: Vec<AstrometryTerm>,
-    /// Epochs of `astrometry`, contiguous for the batched orbit solver.
-    astrometry_times: Vec<f64>,
-    /// Velocities sorted by (instrument, star).
-    velocities: Vec<VelocityTerm>,
-    velocity_times: Vec<f64>,
-    velocity_groups: Vec<VelocityGroup>,
+    polar: PolarEpochs,
+    cartesian: CartesianEpochs,
+    velocities: VelocityEpochs,
     /// Sum over epochs of -0.5 ln det(2 pi C).
     astrometry_ln_norm: f64,
 }
@@ -135,110 +174,122 @@ impl Model {
     /// Builds the model of a data set under the given priors.
     pub fn new(dataset: Dataset, priors: &ModelPriors) -> Result<Self, ModelError> {
         let layout = ParameterLayout::new(&dataset, priors)?;
-        let mut astrometry: Vec<AstrometryTerm> = Vec::with_capacity(dataset.astrometry.len());
-        let mut astrometry_times = Vec::with_capacity(dataset.astrometry.len());
+        let mut polar = PolarEpochs::default();
+        let mut cartesian = CartesianEpochs::default();
         let mut astrometry_ln_norm = 0.0;
         for (n, epoch) in dataset.astrometry.iter().enumerate() {
-            let (measured, s1, s2, c) = match epoch.position {
+            let invalid =
+                |m: String| ModelError::InvalidModel(format!("astrometric epoch {}: {m}", n + 1));
+            match epoch.position {
                 RelativePosition::Polar {
                     sep_mas,
                     sep_err_mas,
                     pa_rad,
                     pa_err_rad,
                     corr,
-                } => (
-                    Measured::Polar {
-                        sep_mas,
-                        sin_pa: pa_rad.sin(),
-                        cos_pa: pa_rad.cos(),
-                    },
-                    sep_err_mas,
-                    pa_err_rad,
-                    corr,
-                ),
+                } => {
+                    let (inv, ln_det) =
+                        inverse_covariance(sep_err_mas, pa_err_rad, corr).map_err(invalid)?;
+                    astrometry_ln_norm -= 0.5 * ln_det;
+                    polar.t.push(epoch.t_jd);
+                    polar.sep_mas.push(sep_mas);
+                    polar.sin_pa.push(pa_rad.sin());
+                    polar.cos_pa.push(pa_rad.cos());
+                    polar.inv.push(inv);
+                }
                 RelativePosition::Cartesian {
                     dra_mas,
                     ddec_mas,
                     dra_err_mas,
                     ddec_err_mas,
                     corr,
-                } => (
-                    Measured::Cartesian { dra_mas, ddec_mas },
-                    dra_err_mas,
-                    ddec_err_mas,
-                    corr,
-                ),
-            };
-            let (inv, ln_det) = inverse_covariance(s1, s2, c).map_err(|m| {
-                ModelError::InvalidModel(format!("astrometric epoch {}: {m}", n + 1))
-            })?;
-            astrometry_ln_norm -= 0.5 * ln_det;
-            astrometry.push(AstrometryTerm { measured, inv });
-            astrometry_times.push(epoch.t_jd);
+                } => {
+                    let (inv, ln_det) =
+                        inverse_covariance(dra_err_mas, ddec_err_mas, corr).map_err(invalid)?;
+                    astrometry_ln_norm -= 0.5 * ln_det;
+                    cartesian.t.push(epoch.t_jd);
+                    cartesian.dra_mas.push(dra_mas);
+                    cartesian.ddec_mas.push(ddec_mas);
+                    cartesian.inv.push(inv);
+                }
+            }
         }
-        // Polar epochs first, then Cartesian: the inner loop then branches
-        // predictably (the sum does not depend on the order).
-        let mut order: Vec<usize> = (0..astrometry.len()).collect();
-        order.sort_by_key(|&i| {
-            (
-                matches!(astrometry[i].measured, Measured::Cartesian { .. }),
-                i,
-            )
-        });
-        let astrometry: Vec<AstrometryTerm> = order.iter().map(|&i| astrometry[i]).collect();
-        let astrometry_times: Vec<f64> = order.iter().map(|&i| astrometry_times[i]).collect();
+        // Padding: zero weight, and values that keep every residual finite.
+        pad_to_lanes(&mut polar.sep_mas, 0.0);
+        pad_to_lanes(&mut polar.sin_pa, 0.0);
+        pad_to_lanes(&mut polar.cos_pa, 1.0);
+        polar.inv.pad();
+        pad_to_lanes(&mut cartesian.dra_mas, 0.0);
+        pad_to_lanes(&mut cartesian.ddec_mas, 0.0);
+        cartesian.inv.pad();
+
+        // One list of epochs per instrument: (t, [rv, err^2, weight] by slot).
+        type Epoch = (f64, [[f64; 3]; 2]);
+        let mut by_instrument: Vec<Vec<Epoch>> = vec![Vec::new(); dataset.instruments.len()];
+        // Epoch of each (instrument, instant), open for the other star.
+        let mut open: HashMap<(usize, u64), usize> = HashMap::new();
         for (n, v) in dataset.velocities.iter().enumerate() {
-            if !(v.rv_err_kms > 0.0 && v.rv_err_kms.is_finite())
-                || v.instrument >= dataset.instruments.len()
+            let err_sq = v.rv_err_kms * v.rv_err_kms;
+            // The variance must stay a normal number: its logarithm is taken
+            // by exponent and mantissa (`LogSum`).
+            if !(err_sq.is_normal() && err_sq < 1e300) || v.instrument >= dataset.instruments.len()
             {
                 return Err(ModelError::InvalidModel(format!(
-                    "velocity {}: error must be positive and the instrument known",
+                    "velocity {}: error must be between 1e-150 and 1e150 km/s and the \
+                     instrument known",
                     n + 1
                 )));
             }
+            let slot = match v.star {
+                Star::Primary => 0,
+                Star::Secondary => 1,
+            };
+            let epochs = &mut by_instrument[v.instrument];
+            let key = (v.instrument, v.t_jd.to_bits());
+            let k = match open.get(&key) {
+                Some(&k) if epochs[k].1[slot][2] == 0.0 => k,
+                _ => {
+                    epochs.push((v.t_jd, [[0.0, 1.0, 0.0]; 2]));
+                    open.insert(key, epochs.len() - 1);
+                    epochs.len() - 1
+                }
+            };
+            epochs[k].1[slot] = [v.rv_kms, err_sq, 1.0];
         }
-        // Group by (instrument, star), keeping file order within a group.
-        let star_rank = |s: Star| match s {
-            Star::Primary => 0,
-            Star::Secondary => 1,
+        let mut velocities = VelocityEpochs {
+            count: dataset.velocities.len(),
+            ..VelocityEpochs::default()
         };
-        let mut order: Vec<usize> = (0..dataset.velocities.len()).collect();
-        order.sort_by_key(|&i| {
-            let v = &dataset.velocities[i];
-            (v.instrument, star_rank(v.star), i)
-        });
-        let mut velocities = Vec::with_capacity(order.len());
-        let mut velocity_times = Vec::with_capacity(order.len());
-        let mut velocity_groups: Vec<VelocityGroup> = Vec::new();
-        for (k, &i) in order.iter().enumerate() {
-            let v = &dataset.velocities[i];
-            let err_sq = v.rv_err_kms * v.rv_err_kms;
-            velocities.push(VelocityTerm {
-                rv_kms: v.rv_kms,
-                err_sq,
-                ln_2pi_err_sq: LN_2PI + err_sq.ln(),
-                instrument: v.instrument,
-                star: v.star,
+        for (instrument, epochs) in by_instrument.iter().enumerate() {
+            if epochs.is_empty() {
+                continue;
+            }
+            velocities.segments.push(InstrumentSegment {
+                instrument,
+                start: velocities.t.len(),
+                len: epochs.len(),
             });
-            velocity_times.push(v.t_jd);
-            match velocity_groups.last_mut() {
-                Some(g) if g.instrument == v.instrument && g.star == v.star => g.end = k + 1,
-                _ => velocity_groups.push(VelocityGroup {
-                    instrument: v.instrument,
-                    star: v.star,
-                    start: k,
-                    end: k + 1,
-                }),
+            for (t, slots) in epochs {
+                velocities.t.push(*t);
+                for (s, &[rv, err_sq, weight]) in slots.iter().enumerate() {
+                    velocities.rv_kms[s].push(rv);
+                    velocities.err_sq[s].push(err_sq);
+                    velocities.weight[s].push(weight);
+                }
+            }
+            pad_to_lanes(&mut velocities.t, 0.0);
+            for s in 0..2 {
+                pad_to_lanes(&mut velocities.rv_kms[s], 0.0);
+                pad_to_lanes(&mut velocities.err_sq[s], 1.0);
+                pad_to_lanes(&mut velocities.weight[s], 0.0);
             }
         }
         Ok(Self {
             layout,
             dataset,
-            astrometry,
-            astrometry_times,
+            polar,
+            cartesian,
             velocities,
-            velocity_times,
-            velocity_groups,
             astrometry_ln_norm,
         })
     }
@@ -283,7 +334,7 @@ impl Model {
 
     /// Number of scalar observations (2 per astrometric epoch, 1 per velocity).
     pub fn observation_count(&self) -> usize {
-        2 * self.astrometry.len() + self.velocities.len()
+        2 * (self.polar.t.len() + self.cartesian.t.len()) + self.velocities.count
     }
 
     /// ln prior density of the sampled coordinates (Jacobians included).
@@ -341,108 +392,47 @@ impl Model {
     }
 
     fn log_likelihood_of(&self, o: &OrbitalParameters, x: &[f64]) -> f64 {
-        let Some(kin) = Kinematics::new(&o.campbell_elements()) else {
+        // Borrowed in place: moving the orbit (its solver holds about 6 KB
+        // of tables) out of the Result would copy it.
+        let built = Orbit::new(&o.campbell_elements());
+        let Ok(orbit) = &built else {
             return f64::NEG_INFINITY;
         };
-        // Epochs are solved LANES at a time into a stack buffer (the batched
-        // solver of dyad-orbit; no allocation).
-        let mut anomalies = [EccentricAnomaly {
-            e_anom: 0.0,
-            sin_e: 0.0,
-            cos_e: 1.0,
-        }; LANES];
-        let mut chi2 = 0.0;
-        for (terms, times) in self
-            .astrometry
-            .chunks(LANES)
-            .zip(self.astrometry_times.chunks(LANES))
-        {
-            let anomalies = &mut anomalies[..times.len()];
-            kin.solve(times, anomalies);
-            for (term, ea) in terms.iter().zip(anomalies.iter()) {
-                let (dra, ddec) = kin.position(ea);
-                let (r1, r2) = match term.measured {
-                    Measured::Polar {
-                        sep_mas,
-                        sin_pa,
-                        cos_pa,
-                    } => {
-                        let sep = (dra * dra + ddec * ddec).sqrt();
-                        // theta_obs - theta_model in (-pi, pi] from the sine
-                        // and cosine of the difference (the model's are
-                        // dRA*/rho and dDec/rho; rho cancels in atan2).
-                        let d_pa = residual_angle(
-                            sin_pa * ddec - cos_pa * dra,
-                            cos_pa * ddec + sin_pa * dra,
-                        );
-                        (sep_mas - sep, d_pa)
-                    }
-                    Measured::Cartesian { dra_mas, ddec_mas } => (dra_mas - dra, ddec_mas - ddec),
-                };
-                let [c11, c12, c22] = term.inv;
-                chi2 += c11 * r1 * r1 + 2.0 * c12 * r1 * r2 + c22 * r2 * r2;
-            }
-        }
-        let mut ll = self.astrometry_ln_norm - 0.5 * chi2;
-        if !self.velocities.is_empty() {
+        let mut polar = PolarMisfit {
+            orbit,
+            data: &self.polar,
+            chi2: [0.0; LANES],
+        };
+        orbit.for_each_block(&self.polar.t, &mut polar);
+        let mut cartesian = CartesianMisfit {
+            orbit,
+            data: &self.cartesian,
+            chi2: polar.chi2,
+        };
+        orbit.for_each_block(&self.cartesian.t, &mut cartesian);
+        let mut ll = self.astrometry_ln_norm - 0.5 * cartesian.chi2.iter().sum::<f64>();
+        if self.velocities.count > 0 {
             let (c1, c2) = self.velocity_factors(o);
-            let n_inst = self.layout.instrument_count();
-            if n_inst <= CACHED_INSTRUMENTS {
-                // One pass over all velocities (full solver lanes), with
-                // each instrument's offset and squared jitter computed once.
-                let mut gamma = [0.0; CACHED_INSTRUMENTS];
-                let mut jitter_sq = [0.0; CACHED_INSTRUMENTS];
-                for k in 0..n_inst {
-                    gamma[k] = self.layout.offset_kms(x, k);
-                    let s = self.layout.jitter_kms(x, k);
-                    jitter_sq[k] = s * s;
-                }
-                let mut memo = VarianceMemo::new();
-                let mut sum = 0.0;
-                for (terms, times) in self
-                    .velocities
-                    .chunks(LANES)
-                    .zip(self.velocity_times.chunks(LANES))
-                {
-                    let anomalies = &mut anomalies[..times.len()];
-                    kin.solve(times, anomalies);
-                    for (term, ea) in terms.iter().zip(anomalies.iter()) {
-                        let k = term.instrument;
-                        let amplitude = match term.star {
-                            Star::Primary => c1,
-                            Star::Secondary => c2,
-                        };
-                        let r = term.rv_kms - (gamma[k] + amplitude * kin.rv_shape(ea));
-                        let (inv_var, ln_norm) = memo.get(term, k, jitter_sq[k]);
-                        sum += r * r * inv_var + ln_norm;
-                    }
-                }
-                ll -= 0.5 * sum;
-            } else {
-                for g in &self.velocity_groups {
-                    let gamma = self.layout.offset_kms(x, g.instrument);
-                    let jitter = self.layout.jitter_kms(x, g.instrument);
-                    let jitter_sq = jitter * jitter;
-                    let amplitude = match g.star {
-                        Star::Primary => c1,
-                        Star::Secondary => c2,
-                    };
-                    let terms = &self.velocities[g.start..g.end];
-                    let times = &self.velocity_times[g.start..g.end];
-                    let mut memo = VarianceMemo::new();
-                    let mut sum = 0.0;
-                    for (terms, times) in terms.chunks(LANES).zip(times.chunks(LANES)) {
-                        let anomalies = &mut anomalies[..times.len()];
-                        kin.solve(times, anomalies);
-                        for (term, ea) in terms.iter().zip(anomalies.iter()) {
-                            let r = term.rv_kms - (gamma + amplitude * kin.rv_shape(ea));
-                            let (inv_var, ln_norm) = memo.get(term, g.instrument, jitter_sq);
-                            sum += r * r * inv_var + ln_norm;
-                        }
-                    }
-                    ll -= 0.5 * sum;
-                }
+            let mut misfit = VelocityMisfit {
+                orbit,
+                data: &self.velocities,
+                amplitude: [c1, c2],
+                start: 0,
+                offset: 0.0,
+                jitter_sq: 0.0,
+                chi2: [0.0; LANES],
+                ln_var: LogSum::new(),
+                finite: true,
+            };
+            let v = &self.velocities;
+            for seg in &v.segments {
+                misfit.start = seg.start;
+                misfit.offset = self.layout.offset_kms(x, seg.instrument);
+                let s = self.layout.jitter_kms(x, seg.instrument);
+                misfit.jitter_sq = s * s;
+                orbit.for_each_block(&v.t[seg.start..seg.start + seg.len], &mut misfit);
             }
+            ll -= 0.5 * misfit.total();
         }
         if ll.is_nan() {
             f64::NEG_INFINITY
@@ -452,17 +442,186 @@ impl Model {
     }
 }
 
+/// Per-lane sums of the quadratic forms of the polar epochs. The lanes'
+/// sums are added up in a fixed order at the end (the same on every
+/// processor and thread count).
+struct PolarMisfit<'a> {
+    orbit: &'a Orbit,
+    data: &'a PolarEpochs,
+    chi2: [f64; LANES],
+}
+
+impl BlockVisitor for PolarMisfit<'_> {
+    #[inline(always)]
+    fn visit(&mut self, first: usize, sin_e: &[f64; LANES], cos_e: &[f64; LANES]) {
+        let p = self.data;
+        let mut sep = [0.0; LANES];
+        let mut num = [0.0; LANES];
+        let mut den = [0.0; LANES];
+        let mut d_pa = [0.0; LANES];
+        let mut all_small = true;
+        for i in 0..LANES {
+            let k = first + i;
+            let at = self.orbit.sky_offset_from_sin_cos(sin_e[i], cos_e[i]);
+            sep[i] = (at.dra * at.dra + at.ddec * at.ddec).sqrt();
+            // theta_obs - theta_model from the sine and cosine of the
+            // difference (the model's are dRA*/rho and dDec/rho; rho cancels
+            // in atan2).
+            num[i] = p.sin_pa[k] * at.ddec - p.cos_pa[k] * at.dra;
+            den[i] = p.cos_pa[k] * at.ddec + p.sin_pa[k] * at.dra;
+            all_small &= is_small_angle(num[i], den[i]);
+            d_pa[i] = atan_small(num[i] / den[i]);
+        }
+        if !all_small {
+            for i in 0..LANES {
+                d_pa[i] = residual_angle(num[i], den[i]);
+            }
+        }
+        for i in 0..LANES {
+            let k = first + i;
+            self.chi2[i] += p.inv.quadratic_form(k, p.sep_mas[k] - sep[i], d_pa[i]);
+        }
+    }
+}
+
+/// Per-lane sums of the quadratic forms of the Cartesian epochs.
+struct CartesianMisfit<'a> {
+    orbit: &'a Orbit,
+    data: &'a CartesianEpochs,
+    chi2: [f64; LANES],
+}
+
+impl BlockVisitor for CartesianMisfit<'_> {
+    #[inline(always)]
+    fn visit(&mut self, first: usize, sin_e: &[f64; LANES], cos_e: &[f64; LANES]) {
+        let c = self.data;
+        for i in 0..LANES {
+            let k = first + i;
+            let at = self.orbit.sky_offset_from_sin_cos(sin_e[i], cos_e[i]);
+            self.chi2[i] += c
+                .inv
+                .quadratic_form(k, c.dra_mas[k] - at.dra, c.ddec_mas[k] - at.ddec);
+        }
+    }
+}
+
+/// Per-lane sums over velocities of r^2 / sigma^2 and ln sigma^2, with
+/// sigma^2 = err^2 + s^2 and s the jitter of the velocity's instrument.
+struct VelocityMisfit<'a> {
+    orbit: &'a Orbit,
+    data: &'a VelocityEpochs,
+    /// (c1, c2): v_star = offset + c_star * rv_shape.
+    amplitude: [f64; 2],
+    /// The instrument segment being visited: its first epoch, offset and
+    /// squared jitter.
+    start: usize,
+    offset: f64,
+    jitter_sq: f64,
+    chi2: [f64; LANES],
+    ln_var: LogSum,
+    /// False once a variance overflowed (the likelihood is then zero).
+    finite: bool,
+}
+
+impl VelocityMisfit<'_> {
+    /// Sum of r^2 / sigma^2 + ln(2 pi sigma^2) over the velocities; +inf if
+    /// a variance overflowed.
+    fn total(&self) -> f64 {
+        if !self.finite {
+            return f64::INFINITY;
+        }
+        self.chi2.iter().sum::<f64>() + self.data.count as f64 * LN_2PI + self.ln_var.value()
+    }
+}
+
+impl BlockVisitor for VelocityMisfit<'_> {
+    #[inline(always)]
+    fn visit(&mut self, first: usize, sin_e: &[f64; LANES], cos_e: &[f64; LANES]) {
+        let v = self.data;
+        let mut var = [[1.0; LANES]; 2];
+        for i in 0..LANES {
+            let k = self.start + first + i;
+            let shape = self.orbit.rv_shape_from_sin_cos(sin_e[i], cos_e[i]);
+            for (s, var_s) in var.iter_mut().enumerate() {
+                let w = v.weight[s][k];
+                let sigma_sq = v.err_sq[s][k] + self.jitter_sq;
+                let r = v.rv_kms[s][k] - (self.offset + self.amplitude[s] * shape);
+                self.chi2[i] += w * (r * r / sigma_sq);
+                // 1 for an empty slot (w = 0), exactly sigma^2 otherwise.
+                var_s[i] = w * sigma_sq + (1.0 - w);
+                self.finite &= sigma_sq <= f64::MAX;
+            }
+        }
+        self.ln_var.add_products(&var[0], &var[1]);
+    }
+}
+
+/// Sum of the logarithms of many positive normal numbers with one
+/// logarithm per lane at the end: each lane keeps a product of mantissas
+/// in [1, 2) and a sum of binary exponents, which is exact.
+struct LogSum {
+    mantissa: [f64; LANES],
+    exponent: [i64; LANES],
+}
+
+impl LogSum {
+    #[inline(always)]
+    fn new() -> Self {
+        Self {
+            mantissa: [1.0; LANES],
+            exponent: [0; LANES],
+        }
+    }
+
+    /// Adds ln a[i] + ln b[i] to lane i (a, b positive normal numbers).
+    #[inline(always)]
+    fn add_products(&mut self, a: &[f64; LANES], b: &[f64; LANES]) {
+        for i in 0..LANES {
+            let (ma, ea) = split_exponent(a[i]);
+            let (mb, eb) = split_exponent(b[i]);
+            // In [1, 8): no overflow, and one more split renormalises it.
+            let (m, e) = split_exponent(self.mantissa[i] * ma * mb);
+            self.mantissa[i] = m;
+            self.exponent[i] += ea + eb + e;
+        }
+    }
+
+    fn value(&self) -> f64 {
+        let mantissas: f64 = self.mantissa.iter().map(|m| m.ln()).sum();
+        let exponents: i64 = self.exponent.iter().sum();
+        mantissas + exponents as f64 * LN_2
+    }
+}
+
+/// (m, e) with v = m 2^e and m in [1, 2), for a positive normal v (the
+/// fields of the IEEE 754 binary64 format).
+#[inline(always)]
+fn split_exponent(v: f64) -> (f64, i64) {
+    const MANTISSA_BITS: u64 = (1 << 52) - 1;
+    const ONE_BITS: u64 = 1023 << 52;
+    let bits = v.to_bits();
+    let e = (bits >> 52) as i64 - 1023;
+    (f64::from_bits((bits & MANTISSA_BITS) | ONE_BITS), e)
+}
+
 /// atan2(y, x), the position-angle residual: when it is small (x > 0 and
 /// |y| <= 7/16 x, |residual| < 0.41 rad, as for every epoch near the
 /// posterior) from the arctangent polynomial below, about three times
 /// cheaper than the platform's atan2; elsewhere the platform's atan2.
 #[inline(always)]
 fn residual_angle(y: f64, x: f64) -> f64 {
-    if x > 0.0 && x < f64::INFINITY && y.abs() <= 0.4375 * x {
+    if is_small_angle(y, x) {
         atan_small(y / x)
     } else {
         y.atan2(x)
     }
+}
+
+/// Whether atan2(y, x) is within the range of [`atan_small`] (x > 0 and
+/// |y| <= 7/16 x).
+#[inline(always)]
+fn is_small_angle(y: f64, x: f64) -> bool {
+    x > 0.0 && x < f64::INFINITY && y.abs() <= 0.4375 * x
 }
 
 /// arctan(a) for |a| <= 7/16: the odd minimax polynomial of fdlibm's
@@ -494,119 +653,31 @@ fn atan_small(a: f64) -> f64 {
     a - a * (s1 + s2)
 }
 
-/// Instruments up to this number have their offsets and jitters cached on
-/// the stack for a single pass over all velocities.
-const CACHED_INSTRUMENTS: usize = 16;
-
-/// 1/(err^2 + s^2) and ln(2 pi (err^2 + s^2)), reused while consecutive
-/// velocities have the same error and instrument (common: one quoted
-/// precision per instrument); otherwise one division and one log per point.
-struct VarianceMemo {
-    err_sq: f64,
-    instrument: usize,
-    inv_var: f64,
-    ln_norm: f64,
-}
-
-impl VarianceMemo {
-    #[inline(always)]
-    fn new() -> Self {
-        Self {
-            err_sq: f64::NAN,
-            instrument: usize::MAX,
-            inv_var: 0.0,
-            ln_norm: 0.0,
-        }
-    }
-
-    #[inline(always)]
-    fn get(&mut self, term: &VelocityTerm, instrument: usize, jitter_sq: f64) -> (f64, f64) {
-        if term.err_sq != self.err_sq || instrument != self.instrument {
-            let var = term.err_sq + jitter_sq;
-            self.err_sq = term.err_sq;
-            self.instrument = instrument;
-            self.inv_var = 1.0 / var;
-            self.ln_norm = if jitter_sq == 0.0 {
-                term.ln_2pi_err_sq
-            } else {
-                LN_2PI + var.ln()
-            };
-        }
-        (self.inv_var, self.ln_norm)
-    }
-}
-
-/// The parts of an orbit the likelihood needs, evaluated without the
-/// pieces it does not (positions at velocity epochs and velocities at
-/// astrometric epochs). Same formulas as `dyad_orbit::Orbit` (DESIGN.md
-/// "Kinematics"): X = cos E - e, Y = sqrt(1 - e^2) sin E,
-/// dDec = A X + F Y, dRA* = B X + G Y, and the velocity shape
-/// cos(nu + omega) + e cos omega = (X cos w - Y sin w) / (1 - e cos E) + e cos w.
-struct Kinematics {
-    solver: KeplerSolver,
-    ti: ThieleInnes,
-    t_peri: f64,
-    inv_period: f64,
-    e: f64,
-    sqrt_1me2: f64,
-    cos_w: f64,
-    sin_w: f64,
-    e_cos_w: f64,
-}
-
-/// 1.5 * 2^52: adding and subtracting it rounds to the nearest integer.
-const ROUND_MAGIC: f64 = 6_755_399_441_055_744.0;
-
-impl Kinematics {
-    #[inline]
-    fn new(el: &CampbellElements) -> Option<Self> {
-        el.validate().ok()?;
-        let (sin_w, cos_w) = el.omega_rad.sin_cos();
-        Some(Self {
-            solver: KeplerSolver::new(el.e).ok()?,
-            ti: el.thiele_innes(),
-            t_peri: el.t_peri_jd,
-            inv_period: 1.0 / el.period_days,
-            e: el.e,
-            sqrt_1me2: ((1.0 - el.e) * (1.0 + el.e)).sqrt(),
-            cos_w,
-            sin_w,
-            e_cos_w: el.e * cos_w,
-        })
-    }
-
-    /// Eccentric anomalies at up to LANES epochs. The mean anomaly is
-    /// reduced on the phase (t - T)/P, where removing whole cycles is exact.
-    #[inline]
-    fn solve(&self, times: &[f64], out: &mut [EccentricAnomaly]) {
-        let mut m = [0.0; LANES];
-        let m = &mut m[..times.len()];
-        for (mi, &t) in m.iter_mut().zip(times) {
-            let phase = (t - self.t_peri) * self.inv_period;
-            let cycles = (phase + ROUND_MAGIC) - ROUND_MAGIC;
-            *mi = TAU * (phase - cycles);
-        }
-        self.solver.solve_many(m, out);
-    }
-
-    #[inline(always)]
-    fn position(&self, ea: &EccentricAnomaly) -> (f64, f64) {
-        let x = ea.cos_e - self.e;
-        let y = self.sqrt_1me2 * ea.sin_e;
-        (self.ti.b * x + self.ti.g * y, self.ti.a * x + self.ti.f * y)
-    }
-
-    #[inline(always)]
-    fn rv_shape(&self, ea: &EccentricAnomaly) -> f64 {
-        let x = ea.cos_e - self.e;
-        let y = self.sqrt_1me2 * ea.sin_e;
-        (x * self.cos_w - y * self.sin_w) / (1.0 - self.e * ea.cos_e) + self.e_cos_w
-    }
-}
-
 #[cfg(test)]
 mod tests {
-    use super::{atan_small, residual_angle};
+    use super::{atan_small, residual_angle, LogSum, LANES};
+
+    /// Reference: the sum of the platform's ln, over values from 1e-300 to
+    /// 1e300 (and exact powers of two, whose mantissa is 1).
+    #[test]
+    fn log_sum_by_exponent_and_mantissa_matches_the_sum_of_logs() {
+        let mut sum = LogSum::new();
+        let mut reference = 0.0;
+        for block in 0..200 {
+            let a: [f64; LANES] = std::array::from_fn(|i| {
+                let k = (block * LANES + i) as f64;
+                10f64.powf(-300.0 + 600.0 * ((k * 0.618_034) % 1.0))
+            });
+            let b: [f64; LANES] = std::array::from_fn(|i| 2f64.powi(i as i32 - 4) * 1.75);
+            sum.add_products(&a, &b);
+            reference += a.iter().chain(&b).map(|v| v.ln()).sum::<f64>();
+        }
+        let got = sum.value();
+        assert!(
+            (got - reference).abs() <= 1e-13 * reference.abs(),
+            "{got} vs {reference}"
+        );
+    }
 
     /// Reference: the platform libm (f64::atan, f64::atan2).
     #[test]

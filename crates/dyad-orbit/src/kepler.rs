@@ -378,10 +378,19 @@ impl IntervalRow {
 
 impl KeplerSolver {
     /// A solver for eccentricity `e`, which must be finite and in [0, 1).
+    // Inlined so that the solver (about 6 KB) is built where it is kept
+    // instead of being copied there.
+    #[inline]
     pub fn new(e: f64) -> Result<Self, OrbitError> {
         if !(0.0..1.0).contains(&e) {
             return Err(OrbitError::Eccentricity(e));
         }
+        Ok(Self::for_valid_eccentricity(e))
+    }
+
+    /// [`Self::new`] for an eccentricity already checked to be in [0, 1).
+    #[inline]
+    pub(crate) fn for_valid_eccentricity(e: f64) -> Self {
         let mid = mid_nodes();
         let mut m_ends = [0.0; INTERVALS + 1];
         let mut d1 = [0.0; INTERVALS + 1];
@@ -403,17 +412,21 @@ impl KeplerSolver {
             );
             IntervalRow::new(m_ends[k], &coef, &mid.mids[k], 0.5 * STEP)
         });
-        let corner_intervals = if e > CORNER_E { CORNER_INTERVALS } else { 0 };
-        // Only solvers that need it carry (and pay to build) the corner table.
-        let corner = (e > CORNER_E).then(|| CornerTable::new(e));
-        Ok(Self {
+        let mut solver = Self {
             e,
             one_minus_e: 1.0 - e,
-            corner_intervals,
-            corner,
+            corner_intervals: 0,
+            corner: None,
             m_ends,
             rows,
-        })
+        };
+        // Only solvers that need it carry (and pay to build) the corner
+        // table; it is written in place (moving it would copy 4 KB).
+        if e > CORNER_E {
+            solver.corner_intervals = CORNER_INTERVALS;
+            solver.corner = Some(CornerTable::new(e));
+        }
+        solver
     }
 
     /// The eccentricity.
@@ -536,6 +549,26 @@ impl KeplerSolver {
             sin_e: join(&lo.sin_e, &hi.sin_e),
             cos_e: join(&lo.cos_e, &hi.cos_e),
         }
+    }
+
+    /// [`Self::solve_lanes`] for the first [`GROUP`] lanes only (a short
+    /// last block), on the portable path.
+    #[inline(always)]
+    pub(crate) fn solve_group_of_four(&self, mean_anomaly: &[f64; GROUP]) -> Solved<GROUP> {
+        self.solve_group(mean_anomaly)
+    }
+
+    /// [`Self::solve_group_of_four`] by the AVX2 kernel.
+    ///
+    /// # Safety
+    /// As [`Self::solve_lanes_avx2`].
+    #[cfg(target_arch = "x86_64")]
+    #[inline(always)]
+    pub(crate) unsafe fn solve_group_of_four_avx2(
+        &self,
+        mean_anomaly: &[f64; GROUP],
+    ) -> Solved<GROUP> {
+        self.solve_group_avx2(std::arch::x86_64::_mm256_loadu_pd(mean_anomaly.as_ptr()))
     }
 
     /// The vector kernel: the interval count and the table rows go straight
@@ -807,7 +840,7 @@ unsafe fn reduce_mean_anomaly_avx2(m: std::arch::x86_64::__m256d) -> std::arch::
 }
 
 /// Lanes of the AVX2 kernel (one 256-bit register of f64).
-const GROUP: usize = 4;
+pub(crate) const GROUP: usize = 4;
 /// The sign bit of an f64.
 const SIGN_BIT: u64 = 1 << 63;
 

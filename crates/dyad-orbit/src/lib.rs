@@ -44,5 +44,5 @@ pub mod velocity;
 pub use elements::{CampbellElements, OrbitGeometry, ThieleInnes};
 pub use error::OrbitError;
 pub use kepler::{solve_kepler, EccentricAnomaly, KeplerSolver};
-pub use orbit::{Orbit, OrbitState, SkyOffset};
+pub use orbit::{BlockVisitor, Orbit, OrbitState, SkyOffset};
 pub use time::TimeScale;

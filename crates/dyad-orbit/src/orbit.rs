@@ -18,7 +18,7 @@
 
 use crate::elements::{CampbellElements, ThieleInnes};
 use crate::error::OrbitError;
-use crate::kepler::{EccentricAnomaly, KeplerSolver, Solved, LANES};
+use crate::kepler::{EccentricAnomaly, KeplerSolver, Solved, GROUP, LANES};
 use std::f64::consts::TAU;
 
 /// Offset of the secondary from the primary on the sky.
@@ -103,13 +103,15 @@ const ROUND_MAGIC: f64 = 6_755_399_441_055_744.0;
 
 impl Orbit {
     /// Checks the elements ([`CampbellElements::validate`]) and precomputes.
+    #[inline]
     pub fn new(el: &CampbellElements) -> Result<Self, OrbitError> {
         el.validate()?;
         let (sin_omega, cos_omega) = el.omega_rad.sin_cos();
         Ok(Self {
             elements: *el,
             thiele_innes: el.thiele_innes(),
-            solver: KeplerSolver::new(el.e)?,
+            // `validate` checked 0 <= e < 1.
+            solver: KeplerSolver::for_valid_eccentricity(el.e),
             inv_period: 1.0 / el.period_days,
             sqrt_1me2: ((1.0 - el.e) * (1.0 + el.e)).sqrt(),
             cos_omega,
@@ -177,81 +179,191 @@ impl Orbit {
     /// exactly rounded on any processor, so every path agrees bit for bit).
     #[inline(always)]
     fn state_from_sin_cos(&self, sin_e: f64, cos_e: f64) -> OrbitState {
-        let e = self.elements.e;
+        let offset = self.sky_offset_from_sin_cos(sin_e, cos_e);
+        OrbitState {
+            dra: offset.dra,
+            ddec: offset.ddec,
+            rv_shape: self.rv_shape_from_sin_cos(sin_e, cos_e),
+        }
+    }
+
+    /// Offset of the secondary for a given sin E and cos E, as
+    /// [`Orbit::sky_offset`] computes it (for callers of
+    /// [`Orbit::for_each_block`]).
+    #[inline(always)]
+    pub fn sky_offset_from_sin_cos(&self, sin_e: f64, cos_e: f64) -> SkyOffset {
         // Elliptic rectangular coordinates in the orbital plane (units of a).
-        let x = cos_e - e;
+        let x = cos_e - self.elements.e;
         let y = self.sqrt_1me2 * sin_e;
         let ti = &self.thiele_innes;
-        // r/a = 1 - e cos E; cos nu = x / (r/a), sin nu = y / (r/a).
-        let r_over_a = (-e).mul_add(cos_e, 1.0);
-        let rv_shape =
-            x.mul_add(self.cos_omega, -(y * self.sin_omega)) / r_over_a + self.e_cos_omega;
-        OrbitState {
+        SkyOffset {
             dra: ti.b.mul_add(x, ti.g * y),
             ddec: ti.a.mul_add(x, ti.f * y),
-            rv_shape,
         }
+    }
+
+    /// cos(nu + omega) + e cos omega for a given sin E and cos E, as
+    /// [`Orbit::rv_shape`] computes it.
+    #[inline(always)]
+    pub fn rv_shape_from_sin_cos(&self, sin_e: f64, cos_e: f64) -> f64 {
+        let e = self.elements.e;
+        let x = cos_e - e;
+        let y = self.sqrt_1me2 * sin_e;
+        // r/a = 1 - e cos E; cos nu = x / (r/a), sin nu = y / (r/a).
+        let r_over_a = (-e).mul_add(cos_e, 1.0);
+        x.mul_add(self.cos_omega, -(y * self.sin_omega)) / r_over_a + self.e_cos_omega
     }
 
     /// States at many epochs without allocation: fills `out[k]` for
     /// `times_jd[k]` with exactly the values of [`Orbit::state`]. If the
-    /// slices differ in length only the common prefix is filled. Epochs are
-    /// solved [`LANES`] at a time so the processor can overlap and vectorise
-    /// them.
+    /// slices differ in length only the common prefix is filled.
     pub fn states_into(&self, times_jd: &[f64], out: &mut [OrbitState]) {
+        struct Fill<'a> {
+            orbit: &'a Orbit,
+            out: &'a mut [OrbitState],
+        }
+        impl BlockVisitor for Fill<'_> {
+            #[inline(always)]
+            fn visit(&mut self, first: usize, sin_e: &[f64; LANES], cos_e: &[f64; LANES]) {
+                let end = (first + LANES).min(self.out.len());
+                for (i, o) in self.out[first..end].iter_mut().enumerate() {
+                    *o = self.orbit.state_from_sin_cos(sin_e[i], cos_e[i]);
+                }
+            }
+        }
+        let n = times_jd.len().min(out.len());
+        self.for_each_block(
+            &times_jd[..n],
+            &mut Fill {
+                orbit: self,
+                out: &mut out[..n],
+            },
+        );
+    }
+
+    /// Solves Kepler's equation at every epoch of `times_jd`, [`LANES`]
+    /// epochs at a time, and calls `visitor.visit(first, sin_e, cos_e)`
+    /// once per block, `first` being the index of the block's first epoch.
+    /// In the last block, lanes past the end of `times_jd` hold E = 0
+    /// (sin E = 0, cos E = 1); the visitor ignores or masks them.
+    ///
+    /// The visitor's code is compiled into the solving loop (with AVX2 and
+    /// FMA where the processor has them), so arithmetic it does lane by
+    /// lane over the arrays vectorises. The solutions are those of
+    /// [`Orbit::eccentric_anomaly`], bit for bit. No allocation.
+    #[inline]
+    pub fn for_each_block<V: BlockVisitor>(&self, times_jd: &[f64], visitor: &mut V) {
         #[cfg(target_arch = "x86_64")]
         if crate::kepler::has_avx2_fma() {
             // SAFETY: the processor has AVX2 and FMA, checked just above.
-            unsafe { self.states_into_avx2(times_jd, out) };
+            unsafe { self.for_each_block_avx2(times_jd, visitor) };
             return;
         }
-        self.states_into_portable(times_jd, out, |m| self.solver.solve_lanes(m));
+        self.for_each_block_with::<V, Portable>(times_jd, visitor);
     }
 
-    /// [`Orbit::states_into`] with the solver's AVX2 kernel; the same
-    /// operations in the same order, so bit-for-bit the same results as the
+    /// [`Orbit::for_each_block`] with the solver's AVX2 kernel; the same
+    /// operations in the same order, so bit for bit the same results as the
     /// portable path.
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx2,fma")]
-    unsafe fn states_into_avx2(&self, times_jd: &[f64], out: &mut [OrbitState]) {
-        // SAFETY: this function only runs where AVX2 and FMA are present.
-        self.states_into_portable(times_jd, out, |m| unsafe {
-            self.solver.solve_lanes_avx2(m)
-        });
+    unsafe fn for_each_block_avx2<V: BlockVisitor>(&self, times_jd: &[f64], visitor: &mut V) {
+        self.for_each_block_with::<V, Avx2>(times_jd, visitor);
     }
 
     #[inline(always)]
-    fn states_into_portable(
+    fn for_each_block_with<V: BlockVisitor, S: LaneSolver>(
         &self,
         times_jd: &[f64],
-        out: &mut [OrbitState],
-        solve_lanes: impl Fn(&[f64; LANES]) -> Solved<LANES>,
+        visitor: &mut V,
     ) {
-        let n = times_jd.len().min(out.len());
-        let (times, out) = (&times_jd[..n], &mut out[..n]);
-        let mut t_chunks = times.chunks_exact(LANES);
-        let mut o_chunks = out.chunks_exact_mut(LANES);
-        for (tc, oc) in (&mut t_chunks).zip(&mut o_chunks) {
+        let mut chunks = times_jd.chunks_exact(LANES);
+        let mut first = 0;
+        for tc in &mut chunks {
             let mut m = [0.0; LANES];
             for (mi, &t) in m.iter_mut().zip(tc) {
                 *mi = self.mean_anomaly(t);
             }
-            let ea = solve_lanes(&m);
-            for (i, o) in oc.iter_mut().enumerate() {
-                *o = self.state_from_sin_cos(ea.sin_e[i], ea.cos_e[i]);
-            }
+            let ea = S::solve_lanes(&self.solver, &m);
+            visitor.visit(first, &ea.sin_e, &ea.cos_e);
+            first += LANES;
         }
-        // The last partial group, padded with M = 0 (results dropped).
-        let rest = t_chunks.remainder();
-        if !rest.is_empty() {
+        // The last partial block: padded with E = 0; only one group of
+        // four is solved when that holds every remaining epoch.
+        let rest = chunks.remainder();
+        if rest.is_empty() {
+            return;
+        }
+        let mut sin_e = [0.0; LANES];
+        let mut cos_e = [1.0; LANES];
+        let n = rest.len();
+        if n <= GROUP {
+            let mut m = [0.0; GROUP];
+            for (mi, &t) in m.iter_mut().zip(rest) {
+                *mi = self.mean_anomaly(t);
+            }
+            let ea = S::solve_four(&self.solver, &m);
+            sin_e[..n].copy_from_slice(&ea.sin_e[..n]);
+            cos_e[..n].copy_from_slice(&ea.cos_e[..n]);
+        } else {
             let mut m = [0.0; LANES];
             for (mi, &t) in m.iter_mut().zip(rest) {
                 *mi = self.mean_anomaly(t);
             }
-            let ea = solve_lanes(&m);
-            for (i, o) in o_chunks.into_remainder().iter_mut().enumerate() {
-                *o = self.state_from_sin_cos(ea.sin_e[i], ea.cos_e[i]);
-            }
+            let ea = S::solve_lanes(&self.solver, &m);
+            sin_e[..n].copy_from_slice(&ea.sin_e[..n]);
+            cos_e[..n].copy_from_slice(&ea.cos_e[..n]);
         }
+        visitor.visit(first, &sin_e, &cos_e);
+    }
+}
+
+/// What [`Orbit::for_each_block`] hands each block of solutions to.
+/// Implement `visit` with `#[inline(always)]`: it is then compiled into the
+/// solving loop, with the vector instructions the loop is compiled for (a
+/// closure would not be inlined reliably there).
+pub trait BlockVisitor {
+    /// Called once per block: `sin_e[i]`, `cos_e[i]` belong to epoch `first + i`.
+    fn visit(&mut self, first: usize, sin_e: &[f64; LANES], cos_e: &[f64; LANES]);
+}
+
+/// The solver's two lane paths, chosen at compile time inside
+/// [`Orbit::for_each_block_with`].
+trait LaneSolver {
+    fn solve_lanes(solver: &KeplerSolver, m: &[f64; LANES]) -> Solved<LANES>;
+    fn solve_four(solver: &KeplerSolver, m: &[f64; GROUP]) -> Solved<GROUP>;
+}
+
+/// The portable lane code.
+struct Portable;
+
+impl LaneSolver for Portable {
+    #[inline(always)]
+    fn solve_lanes(solver: &KeplerSolver, m: &[f64; LANES]) -> Solved<LANES> {
+        solver.solve_lanes(m)
+    }
+    #[inline(always)]
+    fn solve_four(solver: &KeplerSolver, m: &[f64; GROUP]) -> Solved<GROUP> {
+        solver.solve_group_of_four(m)
+    }
+}
+
+/// The AVX2 kernel; only used inside functions compiled for AVX2 and FMA
+/// on processors that have them.
+#[cfg(target_arch = "x86_64")]
+struct Avx2;
+
+#[cfg(target_arch = "x86_64")]
+impl LaneSolver for Avx2 {
+    #[inline(always)]
+    fn solve_lanes(solver: &KeplerSolver, m: &[f64; LANES]) -> Solved<LANES> {
+        // SAFETY: `Avx2` is only used by `Orbit::for_each_block_avx2`,
+        // which runs where AVX2 and FMA are present.
+        unsafe { solver.solve_lanes_avx2(m) }
+    }
+    #[inline(always)]
+    fn solve_four(solver: &KeplerSolver, m: &[f64; GROUP]) -> Solved<GROUP> {
+        // SAFETY: as above.
+        unsafe { solver.solve_group_of_four_avx2(m) }
     }
 }
