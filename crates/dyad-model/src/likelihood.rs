@@ -459,6 +459,8 @@ impl BlockVisitor for PolarMisfit<'_> {
         let mut num = [0.0; LANES];
         let mut den = [0.0; LANES];
         let mut d_pa = [0.0; LANES];
+        // Padding lanes (past the last epoch) get a zero residual.
+        let valid = p.t.len() - first;
         let mut all_small = true;
         for i in 0..LANES {
             let k = first + i;
@@ -469,11 +471,15 @@ impl BlockVisitor for PolarMisfit<'_> {
             // in atan2).
             num[i] = p.sin_pa[k] * at.ddec - p.cos_pa[k] * at.dra;
             den[i] = p.cos_pa[k] * at.ddec + p.sin_pa[k] * at.dra;
-            all_small &= is_small_angle(num[i], den[i]);
-            d_pa[i] = atan_small(num[i] / den[i]);
+            all_small &= is_small_angle(num[i], den[i]) || i >= valid;
+            d_pa[i] = if i < valid {
+                atan_small(num[i] / den[i])
+            } else {
+                0.0
+            };
         }
         if !all_small {
-            for i in 0..LANES {
+            for i in 0..valid.min(LANES) {
                 d_pa[i] = residual_angle(num[i], den[i]);
             }
         }

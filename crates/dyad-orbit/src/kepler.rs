@@ -196,6 +196,7 @@ fn corner_nodes() -> &'static CornerNodes {
 /// With s = t/dm, the s^3, s^4, s^5 coefficients (A, B, C) solve
 /// A + B + C = Y, 3A + 4B + 5C = D, 6A + 12B + 20C = G (matching value,
 /// slope and curvature at the far end).
+#[inline(always)]
 fn hermite_quintic(dm: f64, span: f64, d1: (f64, f64), d2: (f64, f64)) -> [f64; 5] {
     let inv = 1.0 / dm;
     let y = span - d1.0 * dm - 0.5 * d2.0 * dm * dm;
@@ -362,6 +363,7 @@ mod row {
 struct IntervalRow([f64; row::LEN]);
 
 impl IntervalRow {
+    #[inline(always)]
     fn new(start: f64, coef: &[f64; 5], mid: &SmallAngle, half: f64) -> Self {
         let mut r = [0.0; row::LEN];
         r[row::START] = start;

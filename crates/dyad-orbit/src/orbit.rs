@@ -294,26 +294,30 @@ impl Orbit {
         if rest.is_empty() {
             return;
         }
-        let mut sin_e = [0.0; LANES];
-        let mut cos_e = [1.0; LANES];
         let n = rest.len();
-        if n <= GROUP {
+        // Lanes at and past n are set to E = 0 by a select over the whole
+        // block (a copy of n lanes would be a call to memcpy).
+        let keep = |solved: &[f64], pad: f64| -> [f64; LANES] {
+            std::array::from_fn(|i| if i < n { solved[i] } else { pad })
+        };
+        let (sin_e, cos_e) = if n <= GROUP {
             let mut m = [0.0; GROUP];
             for (mi, &t) in m.iter_mut().zip(rest) {
                 *mi = self.mean_anomaly(t);
             }
             let ea = S::solve_four(&self.solver, &m);
-            sin_e[..n].copy_from_slice(&ea.sin_e[..n]);
-            cos_e[..n].copy_from_slice(&ea.cos_e[..n]);
+            let widen = |v: &[f64; GROUP]| -> [f64; LANES] {
+                std::array::from_fn(|i| if i < GROUP { v[i] } else { 0.0 })
+            };
+            (keep(&widen(&ea.sin_e), 0.0), keep(&widen(&ea.cos_e), 1.0))
         } else {
             let mut m = [0.0; LANES];
             for (mi, &t) in m.iter_mut().zip(rest) {
                 *mi = self.mean_anomaly(t);
             }
             let ea = S::solve_lanes(&self.solver, &m);
-            sin_e[..n].copy_from_slice(&ea.sin_e[..n]);
-            cos_e[..n].copy_from_slice(&ea.cos_e[..n]);
-        }
+            (keep(&ea.sin_e, 0.0), keep(&ea.cos_e, 1.0))
+        };
         visitor.visit(first, &sin_e, &cos_e);
     }
 }
