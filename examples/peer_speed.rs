@@ -26,7 +26,9 @@ use dyad_model::load::load_dataset;
 use dyad_model::params::{ModelPriors, OrbitalParameters, PhysicalParameters};
 use dyad_model::simulate::Scenario;
 use dyad_sampler::diagnostics::autocorr_time;
-use dyad_sampler::{run, FnDensity, MemorySink, Progress, RunConfig, RunControl, Start};
+use dyad_sampler::{
+    run, FnDensity, MemorySink, MoveMixture, Progress, RunConfig, RunControl, Start,
+};
 
 /// Observation counts of the three data sets (2 per astrometric epoch, 1 per velocity).
 const OBSERVATION_COUNTS: [usize; 3] = [20, 100, 1000];
@@ -543,8 +545,9 @@ fn sample(
     walkers: usize,
     threads: usize,
     s: &BenchSettings,
-    steps: u64,
+    moves: &MoveMixture,
 ) -> Result<RunTiming> {
+    let steps = s.steps;
     let dim = model.dim();
     let density = FnDensity::new(
         dim,
@@ -553,6 +556,7 @@ fn sample(
     );
     let mut config = RunConfig::new(walkers, s.seed, steps);
     config.convergence = None;
+    config.moves = moves.clone();
     config.parallel = threads > 1;
     config.progress_every = steps.max(1);
     let positions: Vec<f64> = start[..walkers].iter().flatten().copied().collect();
@@ -657,14 +661,21 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
         let us = time_single_evaluation(&model, &points, s.eval_seconds, s.eval_repeats);
         println!("dyad {n:>5} observations: {us:.3} us (on CPU) per log-posterior evaluation");
 
-        let serial = sample(&model, &start, s.walkers, 1, s, s.steps)?;
+        let stretch = MoveMixture::default();
+        let serial = sample(&model, &start, s.walkers, 1, s, &stretch)?;
         println!("{}", describe(n, &serial));
-        let two = sample(&model, &start, s.walkers, 2, s, s.steps)?;
+        let two = sample(&model, &start, s.walkers, 2, s, &stretch)?;
         let identical = two.final_positions == serial.final_positions;
         println!(
             "{}; same chain as on 1 thread: {identical}",
             describe(n, &two)
         );
+        // The moves `dyad fit` uses.
+        let fit_moves = MoveMixture::stretch_and_differential_evolution();
+        let mixture = sample(&model, &start, s.walkers, 1, s, &fit_moves)?;
+        println!("{} (dyad fit's moves)", describe(n, &mixture));
+        let mixture_two = sample(&model, &start, s.walkers, 2, s, &fit_moves)?;
+        println!("{} (dyad fit's moves)", describe(n, &mixture_two));
         if n == 100 {
             // The kept chain, for the Python side to check that emcee's
             // autocorrelation estimate agrees with dyad's on the same draws.
@@ -672,7 +683,7 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
             fs::write(dir.join("dyad_chain.f64"), bytes)?;
             walker_scaling.push(serial.json());
             for &w in &[64usize, MAX_WALKERS] {
-                let r = sample(&model, &start, w, 1, s, s.steps)?;
+                let r = sample(&model, &start, w, 1, s, &stretch)?;
                 println!("{}", describe(n, &r));
                 walker_scaling.push(r.json());
             }
@@ -684,6 +695,10 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
             "serial": serial.json(),
             "two_threads": two.json(),
             "two_threads_identical_chain": identical,
+            "fit_moves_serial": mixture.json(),
+            "fit_moves_two_threads": mixture_two.json(),
+            "fit_moves_two_threads_identical_chain":
+                mixture_two.final_positions == mixture.final_positions,
             "chain_file": if n == 100 { Some("dyad_chain.f64") } else { None },
             "chain_shape": [serial.kept_steps, s.walkers, model.dim()],
         }));
@@ -694,6 +709,8 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
         "walkers": s.walkers,
         "seed": s.seed,
         "move": "stretch, a = 2",
+        "fit_moves": "per walker and step: stretch (a = 2) with probability 0.7, \
+                      differential evolution (gamma0 = 2.38 / sqrt(2 d), sigma = 1e-5) with 0.3",
         "load_average_before": load_before,
         "load_average_after": load_average(),
         "data_sets": sets,

@@ -9,7 +9,7 @@ use anyhow::{bail, Result};
 
 use dyad_model::config::{RunConfig, Tempering};
 use dyad_model::likelihood::Model;
-use dyad_sampler::{CheckpointConfig, Convergence, Move, MoveMixture, TemperingConfig};
+use dyad_sampler::{CheckpointConfig, Convergence, MoveMixture, TemperingConfig};
 
 /// Fewest astrometric epochs for which `temperatures = "auto"` does not
 /// temper: below this an orbit is usually only partly constrained and its
@@ -75,13 +75,7 @@ impl SamplingPlan {
             }
         };
         let mut sampler = dyad_sampler::RunConfig::new(s.walkers, s.seed, s.max_steps as u64);
-        // Mostly stretch moves, with differential-evolution moves that jump
-        // along the ensemble's own directions (helps with the strong
-        // period-eccentricity-phase correlations of partial orbits).
-        sampler.moves = MoveMixture::new(vec![
-            (Move::stretch(), 0.7),
-            (Move::differential_evolution(), 0.3),
-        ])?;
+        sampler.moves = MoveMixture::stretch_and_differential_evolution();
         sampler.thin = s.thinning.max(1) as u64;
         sampler.checkpoint = checkpoint;
         sampler.convergence = Some(Convergence {
