@@ -703,14 +703,18 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
             "chain_shape": [serial.kept_steps, s.walkers, model.dim()],
         }));
     }
+    let fit_weights = MoveMixture::stretch_and_differential_evolution().weights();
     let doc = json!({
         "steps": s.steps,
         "burn_in": s.burn_in,
         "walkers": s.walkers,
         "seed": s.seed,
         "move": "stretch, a = 2",
-        "fit_moves": "per walker and step: stretch (a = 2) with probability 0.7, \
-                      differential evolution (gamma0 = 2.38 / sqrt(2 d), sigma = 1e-5) with 0.3",
+        // Read by the Python side, which gives emcee the same mixture.
+        "fit_moves_weights": {
+            "stretch": fit_weights[0],
+            "differential_evolution": fit_weights[1],
+        },
         "load_average_before": load_before,
         "load_average_after": load_average(),
         "data_sets": sets,

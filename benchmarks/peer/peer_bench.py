@@ -145,12 +145,18 @@ def load_average():
         return None
 
 
-def fit_moves():
-    """The mixture `dyad fit` uses, in emcee's terms: stretch (a = 2) with
-    weight 0.7, differential evolution (emcee's defaults gamma0 = 2.38 /
-    sqrt(2 d), sigma = 1e-5, as dyad's) with weight 0.3. emcee draws one move
-    per step for the whole ensemble, dyad one per walker and step."""
-    return [(emcee.moves.StretchMove(a=2.0), 0.7), (emcee.moves.DEMove(), 0.3)]
+def fit_moves(weights):
+    """The mixture `dyad fit` uses, in emcee's terms, with the weights dyad
+    wrote: stretch (a = 2) and differential evolution (emcee's defaults
+    gamma0 = 2.38 / sqrt(2 d), sigma = 1e-5, as dyad's). emcee draws one
+    move per step for the whole ensemble, dyad one per walker and step."""
+    return [(emcee.moves.StretchMove(a=2.0), weights["stretch"]),
+            (emcee.moves.DEMove(), weights["differential_evolution"])]
+
+
+def mixture_text(weights):
+    return (f"stretch with probability {weights['stretch']:g}, differential evolution with "
+            f"{weights['differential_evolution']:g}")
 
 
 def run_emcee(model, start, walkers, steps, burn_in, moves, seed):
@@ -200,7 +206,9 @@ def cmd_time(args):
         if steps <= burn_in:
             sys.exit(f"obs{n}: {steps} steps is not longer than the burn-in {burn_in}")
         runs = {}
-        for label, moves in (("stretch", emcee.moves.StretchMove(a=2.0)), ("fit_moves", fit_moves())):
+        settings = (("stretch", emcee.moves.StretchMove(a=2.0)),
+                    ("fit_moves", fit_moves(dyad["fit_moves_weights"])))
+        for label, moves in settings:
             r = run_emcee(model, start, walkers, steps, burn_in, moves, args.seed + n)
             print(f"peer {n:>5} observations, {label}: {walkers} walkers x {steps} steps: "
                   f"{r['cpu_seconds']:.1f} s on CPU ({r['wall_seconds']:.1f} s wall), "
@@ -220,7 +228,8 @@ def cmd_time(args):
         "emcee": emcee.__version__,
         "burn_in": burn_in,
         "move": "emcee.moves.StretchMove(a=2.0), vectorize=True",
-        "fit_moves": "[(emcee.moves.StretchMove(a=2.0), 0.7), (emcee.moves.DEMove(), 0.3)], vectorize=True",
+        "fit_moves": "[(emcee.moves.StretchMove(a=2.0), {stretch:g}), (emcee.moves.DEMove(), "
+                     "{differential_evolution:g})], vectorize=True".format(**dyad["fit_moves_weights"]),
         "load_average_before": load_before,
         "load_average_after": load_average(),
         "data_sets": results,
@@ -291,11 +300,11 @@ def cmd_report(args):
         )
     lines += [
         "",
-        "The same runs with the moves `dyad fit` samples with (each walker, each step: stretch "
-        "with probability 0.7, differential evolution with 0.3), against emcee's default move "
+        "The same runs with the moves `dyad fit` samples with (each walker, each step: "
+        f"{mixture_text(dyad['fit_moves_weights'])}), against emcee's default move "
         "(stretch alone, the runs above) and against emcee given the same mixture "
-        "(`[(StretchMove(a=2), 0.7), (DEMove(), 0.3)]`; emcee draws one move per step for the "
-        "whole ensemble). ESS/s on 1 thread from CPU time; with 2 threads from wall time (the "
+        "(`StretchMove(a=2)` and `DEMove()` with those weights; emcee draws one move per step for "
+        "the whole ensemble). ESS/s on 1 thread from CPU time; with 2 threads from wall time (the "
         "peer's wall and CPU times are equal, it runs on one core):",
         "",
         "| observations | dyad tau_max | dyad ESS/s, 1 thread | dyad ESS/s, 2 threads "
