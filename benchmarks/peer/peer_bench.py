@@ -309,8 +309,8 @@ def cmd_report(args):
         "",
         "| observations | dyad tau_max | dyad ESS/s, 1 thread | dyad ESS/s, 2 threads "
         "| emcee default: tau_max | ESS/s | ratio, 1 / 2 threads "
-        "| emcee same mixture: tau_max | ESS/s | ratio, 1 / 2 threads |",
-        "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|",
+        "| emcee same mixture: tau_max | ESS/s | ratio, 1 / 2 threads | same chain on 2 threads |",
+        "|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|",
     ]
     mixture_ratios = []
     for ds in dyad["data_sets"]:
@@ -328,7 +328,8 @@ def cmd_report(args):
             f"| {fmt(p['tau_max'])} | {fmt(p['ess_per_second_cpu'], 0)} "
             f"| {vs_default[0]:,.1f}x / {vs_default[1]:,.1f}x "
             f"| {fmt(pm['tau_max'])} | {fmt(pm['ess_per_second_cpu'], 0)} "
-            f"| {vs_same[0]:,.1f}x / {vs_same[1]:,.1f}x |"
+            f"| {vs_same[0]:,.1f}x / {vs_same[1]:,.1f}x "
+            f"| {'yes' if ds['fit_moves_two_threads_identical_chain'] else 'NO'} |"
         )
     batch = peer["data_sets"][0]["batch"]
     lines += [
