@@ -6,6 +6,10 @@
 //! from known elements), `periods` (compare period windows by evidence) and
 //! `predict` (where the companion will be at given epochs).
 
+// The argument docs below are clap's help texts, where `[sampler]` names a
+// table of the configuration file, not a documentation link.
+#![allow(rustdoc::broken_intra_doc_links)]
+
 mod calibrate;
 mod check;
 mod density;

@@ -2,7 +2,7 @@
 //! generic over the plotters backend.
 //!
 //! Palette: the colour-blind-safe set of Okabe & Ito (2008, "Color Universal
-//! Design", https://jfly.uni-koeln.de/color/), used sparingly on white with
+//! Design", <https://jfly.uni-koeln.de/color/>), used sparingly on white with
 //! grey axes; markers differ in shape as well as colour.
 
 mod category;

@@ -36,9 +36,9 @@ pub struct MassInterval {
 pub struct WindowSummary {
     /// Short label, e.g. "A" or "alias 1".
     pub label: String,
-    /// Lower edge of the window [d].
+    /// Lower edge of the window \[d\].
     pub p_lo_days: f64,
-    /// Upper edge of the window [d].
+    /// Upper edge of the window \[d\].
     pub p_hi_days: f64,
     /// Posterior probability of the window (the windows' sum to 1).
     pub probability: f64,

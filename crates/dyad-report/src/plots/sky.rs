@@ -16,11 +16,11 @@ const NAME: &str = "sky";
 /// One measured relative position with its covariance, in mas.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SkyMeasurement {
-    /// ΔRA* = Δα cos δ, positive to the East [mas].
+    /// ΔRA* = Δα cos δ, positive to the East \[mas\].
     pub dra: f64,
-    /// ΔDec, positive to the North [mas].
+    /// ΔDec, positive to the North \[mas\].
     pub ddec: f64,
-    /// Covariance of (ΔRA*, ΔDec) [mas²]: `[[var_ra, cov], [cov, var_dec]]`.
+    /// Covariance of (ΔRA*, ΔDec) \[mas²\]: `[[var_ra, cov], [cov, var_dec]]`.
     pub cov: [[f64; 2]; 2],
     /// Free text (epoch, source); not drawn, kept for callers' records.
     pub label: String,
@@ -29,11 +29,11 @@ pub struct SkyMeasurement {
 /// A predicted position at a future epoch.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SkyPrediction {
-    /// ΔRA* [mas] (posterior median).
+    /// ΔRA* \[mas\] (posterior median).
     pub dra: f64,
-    /// ΔDec [mas].
+    /// ΔDec \[mas\].
     pub ddec: f64,
-    /// Optional covariance [mas²] drawn as a 1-sigma ellipse.
+    /// Optional covariance \[mas²\] drawn as a 1-sigma ellipse.
     pub cov: Option<[[f64; 2]; 2]>,
     /// Label written beside the marker, e.g. "2027.5".
     pub label: String,

@@ -24,7 +24,7 @@ pub enum Star {
 /// One measured radial velocity, with the instrument offset already removed.
 #[derive(Debug, Clone, PartialEq)]
 pub struct VelocityPoint {
-    /// Time [JD].
+    /// Time \[JD\].
     pub t_jd: f64,
     /// Velocity minus the instrument offset [km/s].
     pub rv_kms: f64,
@@ -43,9 +43,9 @@ pub struct VelocityPoint {
 pub struct VelocityPlotInput {
     /// Title.
     pub title: String,
-    /// Period used for folding [d].
+    /// Period used for folding \[d\].
     pub period_days: f64,
-    /// Time of periastron [JD]; phase 0.
+    /// Time of periastron \[JD\]; phase 0.
     pub t_peri_jd: f64,
     /// Measurements.
     pub points: Vec<VelocityPoint>,
