@@ -1023,10 +1023,24 @@ fn finish(
             stuck_walkers.len()
         ));
     }
-    if status == RunStatus::StepCap && config.convergence.is_some() {
+    if let (RunStatus::StepCap, Some(c)) = (status, &config.convergence) {
+        // The rule needs a long chain *and* stable tau estimates; say which
+        // failed when the chain itself is long enough.
+        let span = state.step.saturating_sub(state.burn_in) as f64;
+        let why = if tau_max > 0.0 && span >= c.tau_multiple * tau_max {
+            format!(
+                ": the chain holds {:.0} autocorrelation times, but the tau estimates \
+                 still changed by more than {:.0} % between checks (common when the \
+                 chain moves between separate modes)",
+                span / tau_max,
+                100.0 * c.max_relative_change
+            )
+        } else {
+            String::new()
+        };
         warnings.push(format!(
             "stopped at the step cap of {} steps before the autocorrelation rule was met \
-             (largest tau about {tau_max:.1} steps); raise max_steps and resume",
+             (largest tau about {tau_max:.1} steps){why}; raise max_steps and resume",
             config.max_steps
         ));
     }
