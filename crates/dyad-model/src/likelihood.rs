@@ -563,8 +563,8 @@ impl BlockVisitor for VelocityMisfit<'_> {
 }
 
 /// Sum of the logarithms of many positive normal numbers with one
-/// logarithm per lane at the end: each lane keeps a product of mantissas
-/// in [1, 2) and a sum of binary exponents, which is exact.
+/// logarithm at the end: each lane keeps a product of mantissas in [1, 2)
+/// and a sum of binary exponents, which is exact.
 struct LogSum {
     mantissa: [f64; LANES],
     exponent: [i64; LANES],
@@ -593,9 +593,11 @@ impl LogSum {
     }
 
     fn value(&self) -> f64 {
-        let mantissas: f64 = self.mantissa.iter().map(|m| m.ln()).sum();
+        // The lanes' mantissas are in [1, 2), so their product is below
+        // 2^LANES: one logarithm for all of them.
+        let mantissas: f64 = self.mantissa.iter().product();
         let exponents: i64 = self.exponent.iter().sum();
-        mantissas + exponents as f64 * LN_2
+        mantissas.ln() + exponents as f64 * LN_2
     }
 }
 
