@@ -280,11 +280,7 @@ impl Orbit {
         let mut chunks = times_jd.chunks_exact(LANES);
         let mut first = 0;
         for tc in &mut chunks {
-            let mut m = [0.0; LANES];
-            for (mi, &t) in m.iter_mut().zip(tc) {
-                *mi = self.mean_anomaly(t);
-            }
-            let ea = S::solve_lanes(&self.solver, &m);
+            let ea = S::solve_lanes(&self.solver, &self.mean_anomalies(tc));
             visitor.visit(first, &ea.sin_e, &ea.cos_e);
             first += LANES;
         }
@@ -301,24 +297,23 @@ impl Orbit {
             std::array::from_fn(|i| if i < n { solved[i] } else { pad })
         };
         let (sin_e, cos_e) = if n <= GROUP {
-            let mut m = [0.0; GROUP];
-            for (mi, &t) in m.iter_mut().zip(rest) {
-                *mi = self.mean_anomaly(t);
-            }
-            let ea = S::solve_four(&self.solver, &m);
-            let widen = |v: &[f64; GROUP]| -> [f64; LANES] {
-                std::array::from_fn(|i| if i < GROUP { v[i] } else { 0.0 })
-            };
-            (keep(&widen(&ea.sin_e), 0.0), keep(&widen(&ea.cos_e), 1.0))
+            let ea = S::solve_four(&self.solver, &self.mean_anomalies(rest));
+            (keep(&ea.sin_e, 0.0), keep(&ea.cos_e, 1.0))
         } else {
-            let mut m = [0.0; LANES];
-            for (mi, &t) in m.iter_mut().zip(rest) {
-                *mi = self.mean_anomaly(t);
-            }
-            let ea = S::solve_lanes(&self.solver, &m);
+            let ea = S::solve_lanes(&self.solver, &self.mean_anomalies(rest));
             (keep(&ea.sin_e, 0.0), keep(&ea.cos_e, 1.0))
         };
         visitor.visit(first, &sin_e, &cos_e);
+    }
+
+    /// Mean anomalies of up to L epochs, padded with M = 0.
+    #[inline(always)]
+    fn mean_anomalies<const L: usize>(&self, times_jd: &[f64]) -> [f64; L] {
+        let mut m = [0.0; L];
+        for (mi, &t) in m.iter_mut().zip(times_jd) {
+            *mi = self.mean_anomaly(t);
+        }
+        m
     }
 }
 
