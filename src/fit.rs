@@ -115,8 +115,8 @@ fn ctrl_c_flag() -> Arc<AtomicBool> {
 }
 
 /// The starting ensemble: a small ball around the best point the search
-/// found, or (tempered runs) walkers spread round-robin over every distinct
-/// mode it found.
+/// found, or (tempered runs) one ball around every distinct mode it found,
+/// walkers spread over them round-robin.
 pub fn starting_ensemble(
     model: &Model,
     config: &RunConfig,
@@ -133,7 +133,6 @@ pub fn starting_ensemble(
              check that the priors allow the data (e.g. the period range) or give [start] values"
         );
     };
-    let dim = model.dim();
     let scales: Vec<Vec<f64>> = modes.iter().map(|m| ball_scale(model, &m.x)).collect();
     if !plan.tempered() || modes.len() == 1 {
         return Ok(Start::Ball {
@@ -141,20 +140,14 @@ pub fn starting_ensemble(
             scale: scales[0].clone(),
         });
     }
-    // Deterministic spread: walker w starts at mode w mod n plus a fixed
-    // pattern of offsets derived from the seed.
-    use rand::{Rng, SeedableRng};
-    let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(config.sampler.seed ^ 0x5eed);
-    let nw = plan.sampler.n_walkers;
-    let mut positions = Vec::with_capacity(nw * dim);
-    for w in 0..nw {
-        let m = w % modes.len();
-        for (centre, scale) in modes[m].x.iter().zip(&scales[m]) {
-            let n: f64 = rng.sample(rand_distr::StandardNormal);
-            positions.push(centre + scale * n);
-        }
-    }
-    Ok(Start::Positions(positions))
+    // Walker w starts in the ball of mode w mod n; the sampler redraws (and
+    // shrinks towards the mode) any draw outside the support of the density
+    // it samples (prior bounds such as a jitter floor, a period window), so
+    // every walker starts where the density is finite.
+    Ok(Start::Balls {
+        centres: modes.iter().map(|m| m.x.clone()).collect(),
+        scales,
+    })
 }
 
 /// Per-coordinate spread of the starting ball: a tenth of the curvature

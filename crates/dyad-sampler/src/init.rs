@@ -14,12 +14,26 @@ pub type DrawFn<'a> = &'a (dyn Fn(&mut dyn RngCore, &mut [f64]) + Sync);
 #[derive(Clone)]
 pub enum Start<'a> {
     /// A Gaussian ball: coordinate i of each walker is `centre[i] + scale[i] * n`,
-    /// n ~ N(0, 1). Every scale must be > 0.
+    /// n ~ N(0, 1). Every scale must be > 0. A draw where the density is
+    /// zero or not finite (a prior bound, a window edge) is redrawn, and the
+    /// ball shrinks by half after every [`SHRINK_EVERY`] failed draws of a
+    /// walker: when the centre has a finite density the walker is so placed
+    /// near it, inside the support, even when the centre sits at a bound.
     Ball {
         /// Centre of the ball (a good guess of the mode).
         centre: Vec<f64>,
         /// Per-parameter spread.
         scale: Vec<f64>,
+    },
+    /// Several Gaussian balls (e.g. one per mode of a multimodal
+    /// posterior): walker w is drawn from ball `w % centres.len()`. Every
+    /// centre must have a finite density; see [`Start::Ball`] for how walkers
+    /// are kept inside the support.
+    Balls {
+        /// Centres of the balls.
+        centres: Vec<Vec<f64>>,
+        /// Per-parameter spread of each ball (all > 0).
+        scales: Vec<Vec<f64>>,
     },
     /// Independent draws from a user function (typically the prior).
     Draws(DrawFn<'a>),
@@ -36,6 +50,9 @@ impl std::fmt::Debug for Start<'_> {
                 .field("centre", centre)
                 .field("scale", scale)
                 .finish(),
+            Start::Balls { centres, .. } => {
+                f.debug_struct("Balls").field("n", &centres.len()).finish()
+            }
             Start::Draws(_) => f.write_str("Draws(..)"),
             Start::Positions(p) => f.debug_tuple("Positions").field(&p.len()).finish(),
         }
@@ -94,29 +111,13 @@ pub(crate) fn place_walkers<D: LogDensity + ?Sized>(
             }
         }
         Start::Ball { centre, scale } => {
-            if centre.len() != dim || scale.len() != dim {
-                return Err(SamplerError::Config(format!(
-                    "start ball has {} centre and {} scale values for {dim} parameters",
-                    centre.len(),
-                    scale.len()
-                )));
-            }
-            if let Some(i) = scale.iter().position(|s| !(*s > 0.0 && s.is_finite())) {
-                return Err(SamplerError::BadEnsemble {
-                    problem: format!("start-ball scale of parameter {i} is {}", scale[i]),
-                    advice: "give every parameter a positive spread, otherwise the walkers \
-                             span fewer dimensions than the problem"
-                        .into(),
-                });
-            }
-            let mut propose = |rng: &mut dyn RngCore, x: &mut [f64]| {
-                for i in 0..dim {
-                    let n: f64 = StandardNormal.sample(rng);
-                    x[i] = centre[i] + scale[i] * n;
-                }
-            };
+            let balls = (std::slice::from_ref(centre), std::slice::from_ref(scale));
             let out = (&mut pos[..], &mut lps[..], &mut lls[..]);
-            draw_walkers(density, out, rung, max_tries, rng, &mut propose)?;
+            place_in_balls(density, balls, out, rung, max_tries, rng)?;
+        }
+        Start::Balls { centres, scales } => {
+            let out = (&mut pos[..], &mut lps[..], &mut lls[..]);
+            place_in_balls(density, (centres, scales), out, rung, max_tries, rng)?;
         }
         Start::Draws(draw) => {
             let out = (&mut pos[..], &mut lps[..], &mut lls[..]);
@@ -126,6 +127,75 @@ pub(crate) fn place_walkers<D: LogDensity + ?Sized>(
         }
     }
     Ok((pos, lps, lls))
+}
+
+/// Failed draws of a walker after which its start ball shrinks by half.
+pub const SHRINK_EVERY: usize = 10;
+
+/// Checks the balls and draws walker w from ball `w % n`, shrinking a
+/// walker's ball by half after every [`SHRINK_EVERY`] failed draws when the
+/// centre itself has a finite density (so the draws end up inside the
+/// support near the centre, by construction).
+fn place_in_balls<D: LogDensity + ?Sized>(
+    density: &D,
+    (centres, scales): (&[Vec<f64>], &[Vec<f64>]),
+    out: (&mut [f64], &mut [f64], &mut [f64]),
+    rung: usize,
+    max_tries: usize,
+    rng: &mut dyn RngCore,
+) -> Result<(), SamplerError> {
+    let dim = density.dim();
+    if centres.is_empty() || centres.len() != scales.len() {
+        return Err(SamplerError::Config(format!(
+            "{} start-ball centres and {} scales",
+            centres.len(),
+            scales.len()
+        )));
+    }
+    let mut shrinks = Vec::with_capacity(centres.len());
+    for (centre, scale) in centres.iter().zip(scales) {
+        if centre.len() != dim || scale.len() != dim {
+            return Err(SamplerError::Config(format!(
+                "start ball has {} centre and {} scale values for {dim} parameters",
+                centre.len(),
+                scale.len()
+            )));
+        }
+        if let Some(i) = scale.iter().position(|s| !(*s > 0.0 && s.is_finite())) {
+            return Err(SamplerError::BadEnsemble {
+                problem: format!("start-ball scale of parameter {i} is {}", scale[i]),
+                advice: "give every parameter a positive spread, otherwise the walkers \
+                         span fewer dimensions than the problem"
+                    .into(),
+            });
+        }
+        shrinks.push(density_at(density, centre).is_some());
+    }
+    let (pos, lps, lls) = out;
+    for w in 0..lps.len() {
+        let b = w % centres.len();
+        let x = &mut pos[w * dim..(w + 1) * dim];
+        let found = (0..max_tries).find_map(|t| {
+            let factor = if shrinks[b] {
+                0.5f64.powi((t / SHRINK_EVERY) as i32)
+            } else {
+                1.0
+            };
+            for i in 0..dim {
+                let n: f64 = StandardNormal.sample(rng);
+                x[i] = centres[b][i] + factor * scales[b][i] * n;
+            }
+            density_at(density, x)
+        });
+        let (lp, ll) = found.ok_or(SamplerError::NoValidStart {
+            walker: w,
+            rung,
+            tries: max_tries,
+        })?;
+        lps[w] = lp;
+        lls[w] = ll;
+    }
+    Ok(())
 }
 
 /// Fills every walker's position with proposals until one has a finite
