@@ -56,13 +56,12 @@ pub struct Outcome {
 }
 
 impl Outcome {
-    fn from_result(result: &RunResult, plan: &SamplingPlan) -> Result<Self> {
+    fn from_result(result: &RunResult) -> Result<Self> {
         let status = match result.status {
             RunStatus::Converged => "converged",
             RunStatus::StepCap => "step cap",
             RunStatus::Cancelled => "stopped by the user",
         };
-        let fraction_burn_in = (plan.burn_in_fraction * result.steps as f64).round() as u64;
         let evidence = match &result.tempered {
             Some(t) if result.status != RunStatus::Cancelled => Some(serde_json::to_value(
                 estimate_evidence(t).context("estimating the evidence from the tempered chains")?,
@@ -72,7 +71,8 @@ impl Outcome {
         Ok(Self {
             status: status.to_owned(),
             steps: result.steps,
-            burn_in: result.burn_in.max(fraction_burn_in),
+            // The sampler discards exactly the configured share of the steps.
+            burn_in: result.burn_in,
             warnings: result.warnings.clone(),
             diagnostics: diagnostics_json(&result.diagnostics)?,
             betas: result.betas.clone(),
@@ -315,7 +315,7 @@ pub fn finish(
     result: &RunResult,
     quiet: bool,
 ) -> Result<()> {
-    let outcome = Outcome::from_result(result, plan)?;
+    let outcome = Outcome::from_result(result)?;
     outcome.write(files)?;
     for w in &outcome.warnings {
         eprintln!("warning: {w}");

@@ -100,8 +100,7 @@ fn tempered_run(
 ) -> Result<(RunFiles, dyad_sampler::RunResult)> {
     let files = open_run_folder(folder, config, config_text, overwrite)?;
     let mut plan = SamplingPlan::new(config, model, Some(checkpoint_config(&files)))?;
-    let burn_in = (config.sampler.burn_in_fraction * config.sampler.max_steps as f64) as u64;
-    plan.ensure_tempering(burn_in);
+    plan.ensure_tempering();
     let (density, start) = match window {
         Some((lo, hi)) => {
             write_window(&files, lo, hi)?;

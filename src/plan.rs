@@ -23,8 +23,8 @@ pub const AUTO_TEMPERATURES: usize = 16;
 pub struct SamplingPlan {
     /// The sampler configuration.
     pub sampler: dyad_sampler::RunConfig,
-    /// Share of the steps always discarded as burn-in, whatever the
-    /// autocorrelation-based burn-in says.
+    /// Share of the steps discarded as burn-in (the sampler discards
+    /// exactly this share of the steps it did).
     pub burn_in_fraction: f64,
     /// Plain-language notes for the user (why tempering is on, ...).
     pub notes: Vec<String>,
@@ -77,6 +77,7 @@ impl SamplingPlan {
         let mut sampler = dyad_sampler::RunConfig::new(s.walkers, s.seed, s.max_steps as u64);
         sampler.moves = MoveMixture::stretch_and_differential_evolution();
         sampler.thin = s.thinning.max(1) as u64;
+        sampler.burn_in_fraction = Some(s.burn_in_fraction);
         sampler.checkpoint = checkpoint;
         sampler.convergence = Some(Convergence {
             tau_multiple: s.autocorrelation_times,
@@ -98,9 +99,12 @@ impl SamplingPlan {
     }
 
     /// Tempers the run (with the automatic number of temperatures) if the
-    /// configuration did not ask for a number: evidence needs a ladder.
-    pub fn ensure_tempering(&mut self, burn_in_steps: u64) {
+    /// configuration did not ask for a number: evidence needs a ladder. The
+    /// ladder adapts during the burn-in share of `max_steps`.
+    pub fn ensure_tempering(&mut self) {
         if self.sampler.tempering.is_none() {
+            let burn_in_steps =
+                (self.burn_in_fraction * self.sampler.max_steps as f64).round() as u64;
             self.sampler.tempering = Some(TemperingConfig {
                 n_temperatures: AUTO_TEMPERATURES,
                 burn_in_steps: burn_in_steps.max(1),

@@ -95,6 +95,12 @@ pub struct RunConfig {
     pub max_steps: u64,
     /// Stop early when converged; `None` runs exactly `max_steps`.
     pub convergence: Option<Convergence>,
+    /// Burn-in as a fixed share of the steps done: with `Some(f)` the run
+    /// discards exactly `round(f * steps)` steps, the stopping rule judges
+    /// the chain after that burn-in only, and a tempered run stops only once
+    /// that burn-in covers the ladder's adaptation. `None`: burn-in from the
+    /// autocorrelation time ([`Convergence::burn_in_taus`]).
+    pub burn_in_fraction: Option<f64>,
     /// Keep (stream to the sink) every `thin`-th step.
     pub thin: u64,
     /// Share walker updates with helper threads, as many as the current rayon
@@ -127,6 +133,7 @@ impl RunConfig {
             moves: MoveMixture::default(),
             max_steps,
             convergence: Some(Convergence::default()),
+            burn_in_fraction: None,
             thin: 1,
             parallel: true,
             checkpoint: None,
@@ -170,6 +177,13 @@ impl RunConfig {
         }
         if let Some(t) = &self.tempering {
             t.validate()?;
+        }
+        if let Some(f) = self.burn_in_fraction {
+            if !(0.0..1.0).contains(&f) {
+                return Err(SamplerError::Config(format!(
+                    "the burn-in fraction must lie in [0, 1), got {f}"
+                )));
+            }
         }
         Ok(())
     }
@@ -803,7 +817,7 @@ fn drive_steps<D: LogDensity + ?Sized>(
 
         if let Some(conv) = &config.convergence {
             if state.ladder.frozen && step >= state.next_check {
-                check_convergence(state, conv, &mut estimator);
+                check_convergence(state, conv, config.burn_in_fraction, &mut estimator);
             }
         }
 
@@ -840,14 +854,35 @@ fn drive_steps<D: LogDensity + ?Sized>(
     finish(config, state, status, ladder_store)
 }
 
-fn check_convergence(state: &mut State, conv: &Convergence, estimator: &mut AutocorrEstimator) {
+/// Burn-in of `fraction` of `steps` (rounded to the nearest step).
+fn fraction_of(fraction: f64, steps: u64) -> u64 {
+    (fraction * steps as f64).round() as u64
+}
+
+fn check_convergence(
+    state: &mut State,
+    conv: &Convergence,
+    burn_in_fraction: Option<f64>,
+    estimator: &mut AutocorrEstimator,
+) {
     let h = &state.history;
     state.next_check = state.step + conv.min_check_interval.max(state.step / 10);
-    // Estimate tau on the second half of the history only: the first half
-    // holds the approach to the typical set, which inflates tau and keeps
-    // the estimate drifting (common practice: discard the start before
-    // estimating tau, e.g. Sokal 1997 sec. 3).
-    let first = h.len / 2;
+    // Estimate tau after the burn-in only: the start holds the approach to
+    // the typical set, which inflates tau and keeps the estimate drifting
+    // (common practice: discard the start before estimating tau, e.g. Sokal
+    // 1997 sec. 3). Without a fixed fraction that is the second half of the
+    // history.
+    let first = match burn_in_fraction {
+        Some(f) => {
+            let burn_in = fraction_of(f, state.step);
+            if burn_in < h.start {
+                // The burn-in would keep steps of the ladder's adaptation.
+                return;
+            }
+            ((burn_in - h.start).div_ceil(h.thin) as usize).min(h.len)
+        }
+        None => h.len / 2,
+    };
     let kept = h.len - first;
     if kept < 8 {
         return;
@@ -871,14 +906,23 @@ fn check_convergence(state: &mut State, conv: &Convergence, estimator: &mut Auto
     if long_enough && stable {
         let tau_max = taus.iter().cloned().fold(0.0, f64::max);
         state.converged = true;
-        let half = first as u64 * h.thin;
-        state.burn_in = h.start + half.max((conv.burn_in_taus * tau_max).ceil() as u64);
+        state.burn_in = match burn_in_fraction {
+            Some(f) => fraction_of(f, state.step),
+            None => {
+                let half = first as u64 * h.thin;
+                h.start + half.max((conv.burn_in_taus * tau_max).ceil() as u64)
+            }
+        };
     }
     state.last_tau = taus;
 }
 
 fn fallback_burn_in(state: &State, config: &RunConfig, estimator: &mut AutocorrEstimator) -> u64 {
     let h = &state.history;
+    if let Some(f) = config.burn_in_fraction {
+        // At the step cap of a tempered run this is the ladder's freeze.
+        return fraction_of(f, state.step).max(h.start);
+    }
     let run = state.step.saturating_sub(h.start);
     let factor = config.convergence.as_ref().map_or(3.0, |c| c.burn_in_taus);
     let mut tau_max = f64::NAN;

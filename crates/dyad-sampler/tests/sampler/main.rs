@@ -10,6 +10,7 @@ mod alloc;
 static COUNTING: alloc::CountingAllocator = alloc::CountingAllocator;
 
 mod bounded;
+mod burn_in;
 mod curved;
 mod diagnosis;
 mod gaussian;
