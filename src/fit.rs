@@ -315,7 +315,20 @@ pub fn finish(
     result: &RunResult,
     quiet: bool,
 ) -> Result<()> {
-    let outcome = Outcome::from_result(result)?;
+    let mut outcome = Outcome::from_result(result)?;
+    let worst_rhat =
+        result
+            .diagnostics
+            .split_rhat
+            .iter()
+            .fold(1.0f64, |a, &r| if r.is_nan() { a } else { a.max(r) });
+    let unconverged = result.status == RunStatus::StepCap || worst_rhat > 1.1;
+    if !plan.tempered() && crate::plan::is_sparse(model) && unconverged {
+        outcome.warnings.push(format!(
+            "largest split R-hat {worst_rhat:.2}; {}",
+            crate::plan::temper_hint(model)
+        ));
+    }
     outcome.write(files)?;
     for w in &outcome.warnings {
         eprintln!("warning: {w}");

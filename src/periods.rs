@@ -17,6 +17,7 @@ use dyad_model::config::RunConfig;
 use dyad_model::likelihood::Model;
 use dyad_model::params::ScaledPrior;
 use dyad_model::prior::Prior;
+use dyad_model::start::{find_starting_points, StartSettings};
 use dyad_report::{MassInterval, WindowSummary};
 use dyad_sampler::evidence::{estimate_evidence, window_probabilities, EvidenceEstimates};
 
@@ -121,7 +122,8 @@ fn tempered_run(
 }
 
 /// Windows from the separate period modes of a tempered run over the whole
-/// prior: each mode's range widened by 5 per cent either side, overlaps merged.
+/// prior, and from the distinct optima of the starting-point search (which
+/// finds aliases the cold chain may never visit): see [`windows_around`].
 fn discover_windows(
     folder: &Path,
     config: &RunConfig,
@@ -134,7 +136,7 @@ fn discover_windows(
             "no period windows configured: a tempered run over the whole prior finds them ..."
         );
     }
-    let (files, result) = tempered_run(
+    let (files, _) = tempered_run(
         &folder.join("survey"),
         config,
         config_text,
@@ -144,22 +146,63 @@ fn discover_windows(
         options.quiet,
     )?;
     let outcome = crate::fit::Outcome::read(&files)?;
-    let _ = result;
     let draws = read_draws(&files, model, outcome.burn_in)?;
-    let (p_lo, p_hi) = model.layout().priors().period_days.support();
-    let mut windows: Vec<(f64, f64)> = Vec::new();
-    for m in period_modes(&draws.table) {
-        let lo = (m.range_days[0] / 1.05).max(p_lo);
-        let hi = (m.range_days[1] * 1.05).min(p_hi);
-        match windows.last_mut() {
-            Some(last) if lo <= last.1 => last.1 = last.1.max(hi),
-            _ => windows.push((lo, hi)),
+    let mut ranges: Vec<[f64; 2]> = period_modes(&draws.table)
+        .iter()
+        .map(|m| m.range_days)
+        .collect();
+    let settings = StartSettings {
+        seed: config.sampler.seed,
+        ..StartSettings::default()
+    };
+    for start in find_starting_points(model, &settings, Some(&config.start)) {
+        if let Some(o) = model.layout().orbital(&start.x) {
+            ranges.push([o.period_days / 1.02, o.period_days * 1.02]);
         }
     }
+    let windows = windows_around(&ranges, model.layout().priors().period_days.support());
     if windows.is_empty() {
         bail!("the survey run found no period mode");
     }
     Ok(windows)
+}
+
+/// Period windows (days) around ranges of periods occupied by modes:
+/// overlapping ranges are merged, neighbouring windows meet at the geometric
+/// mid-point of the gap between them (so separate modes always get separate
+/// windows, however close), and the outermost edges lie 5 per cent beyond
+/// the outermost modes, within the prior's support `(lo, hi)`.
+pub fn windows_around(ranges: &[[f64; 2]], (p_lo, p_hi): (f64, f64)) -> Vec<(f64, f64)> {
+    let mut sorted: Vec<[f64; 2]> = ranges
+        .iter()
+        .copied()
+        .filter(|r| r[0] > 0.0 && r[1] >= r[0] && r[1].is_finite())
+        .collect();
+    sorted.sort_by(|a, b| a[0].total_cmp(&b[0]));
+    let mut merged: Vec<[f64; 2]> = Vec::new();
+    for r in sorted {
+        match merged.last_mut() {
+            Some(last) if r[0] <= last[1] => last[1] = last[1].max(r[1]),
+            _ => merged.push(r),
+        }
+    }
+    let n = merged.len();
+    (0..n)
+        .map(|k| {
+            let lo = if k == 0 {
+                merged[0][0] / 1.05
+            } else {
+                (merged[k - 1][1] * merged[k][0]).sqrt()
+            };
+            let hi = if k + 1 == n {
+                merged[k][1] * 1.05
+            } else {
+                (merged[k][1] * merged[k + 1][0]).sqrt()
+            };
+            (lo.max(p_lo), hi.min(p_hi))
+        })
+        .filter(|(lo, hi)| hi > lo)
+        .collect()
 }
 
 /// `dyad periods CONFIG`.
@@ -329,4 +372,124 @@ fn write_comparison(folder: &Path, results: &[WindowResult], quiet: bool) -> Res
         println!("results in {}", folder.display());
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dyad_report::{ParameterInfo, PosteriorDraws};
+    use dyad_sampler::LogDensity;
+
+    /// Draws of a posterior with two period modes, log-normal in P around
+    /// `centres` (days) with relative width `width`, `share` in the first.
+    fn two_modes(centres: [f64; 2], width: f64, share: f64) -> PosteriorDraws {
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, StandardNormal};
+        let mut rng = rand_xoshiro::Xoshiro256PlusPlus::seed_from_u64(7);
+        let n = 20_000;
+        let values: Vec<f64> = (0..n)
+            .map(|d| {
+                let c = if (d as f64) < share * n as f64 {
+                    centres[0]
+                } else {
+                    centres[1]
+                };
+                let z: f64 = StandardNormal.sample(&mut rng);
+                c * (width * z).exp()
+            })
+            .collect();
+        let params = vec![ParameterInfo::linear("period_days", "d", "P")];
+        PosteriorDraws::new(params, values, vec![0.0; n]).unwrap()
+    }
+
+    fn windows_of(draws: &PosteriorDraws) -> Vec<(f64, f64)> {
+        let ranges: Vec<[f64; 2]> = period_modes(draws).iter().map(|m| m.range_days).collect();
+        windows_around(&ranges, (36.5, 10_957.5))
+    }
+
+    #[test]
+    fn two_separate_period_modes_get_two_windows() {
+        // Modes at 1.5 and 3.1 yr (the alias pattern of yearly sampling),
+        // and modes only 9 per cent apart (which widening each mode by 5 per
+        // cent and merging overlaps used to join into one window).
+        for (centres, width) in [([548.0, 1132.0], 0.01), ([1000.0, 1090.0], 0.004)] {
+            let draws = two_modes(centres, width, 0.3);
+            let w = windows_of(&draws);
+            assert_eq!(w.len(), 2, "{centres:?}: {w:?}");
+            for (c, (lo, hi)) in centres.iter().zip(&w) {
+                assert!(lo < c && c < hi, "{c} not in [{lo}, {hi}]");
+            }
+            // Neighbouring windows meet; none overlaps.
+            assert_eq!(w[0].1, w[1].0);
+        }
+        // One mode, one window; windows stay within the prior.
+        let one = windows_of(&two_modes([1132.0, 1132.0], 0.01, 0.5));
+        assert_eq!(one.len(), 1, "{one:?}");
+        let edge = windows_around(&[[30.0, 40.0]], (36.5, 10_957.5));
+        assert_eq!(edge, vec![(36.5, 42.0)]);
+    }
+
+    /// The sparse demo's configuration with the jitter sampled under a
+    /// log-uniform prior (whose floor the best fit sits against), small
+    /// enough to run 20 seeds in a few seconds.
+    fn sparse_with_jitter(seed: u64, temperatures: usize) -> RunConfig {
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/sparse.toml");
+        let text = fs::read_to_string(&path)
+            .unwrap()
+            .replace(
+                "jitter_kms = 0",
+                "jitter_kms = { shape = \"log_uniform\", min = 0.001, max = 10.0 }",
+            )
+            .replace("walkers = 48", "walkers = 28")
+            .replace("max_steps = 8000", "max_steps = 120")
+            .replace("thinning = 2", "thinning = 1")
+            .replace("seed = 5", &format!("seed = {seed}"))
+            .replace(
+                "temperatures = \"auto\"",
+                &format!("temperatures = {temperatures}"),
+            );
+        RunConfig::from_toml_str(&text, &path).unwrap()
+    }
+
+    fn sample(density: &Posterior<'_>, plan: &SamplingPlan, start: &dyad_sampler::Start<'_>) {
+        let mut sink = dyad_sampler::MemorySink::for_samples(density.dim(), plan.sampler.n_walkers);
+        let result = dyad_sampler::run(
+            density,
+            &plan.sampler,
+            start,
+            &mut sink,
+            dyad_sampler::RunControl::default(),
+        )
+        .expect("the run starts and finishes");
+        assert_eq!(result.steps, plan.sampler.max_steps);
+        let tempered = result.tempered.as_ref().expect("tempered chains");
+        let evidence = estimate_evidence(tempered).expect("evidence");
+        assert!(evidence.stepping_stone.ln_z.is_finite());
+        assert!(evidence.thermodynamic_integration.total_error().is_finite());
+    }
+
+    #[test]
+    fn tempered_fits_and_window_runs_with_a_sampled_jitter_start_on_20_seeds() {
+        // Before the per-mode balls were kept inside the support, tempered
+        // fits of this configuration failed with "walker k starts where the
+        // density is zero or not finite" (seeds 1 to 8 tried, 4 and 16
+        // temperatures).
+        for seed in 1..=20u64 {
+            let temperatures = [3, 4, 8, 16][seed as usize % 4];
+            let config = sparse_with_jitter(seed, temperatures);
+            let model = Model::from_config(&config).unwrap();
+            let plan = SamplingPlan::new(&config, &model, None).unwrap();
+            assert!(plan.tempered());
+            // A whole-prior fit.
+            let start = starting_ensemble(&model, &config, &plan).unwrap();
+            sample(&Posterior::new(&model), &plan, &start);
+            // A run restricted to one of the configured windows.
+            let windows = &config.sampler.period_windows_days;
+            let (lo, hi) = windows[seed as usize % windows.len()];
+            let start_model = Model::from_config(&start_config(&config, lo, hi).unwrap()).unwrap();
+            let start = starting_ensemble(&start_model, &config, &plan).unwrap();
+            let density = Posterior::in_period_window(&model, lo, hi).unwrap();
+            sample(&density, &plan, &start);
+        }
+    }
 }

@@ -58,7 +58,12 @@ impl SamplingPlan {
         }
         let mut notes = Vec::new();
         let n_temps = match s.tempering {
-            Tempering::Off => 1,
+            Tempering::Off => {
+                if is_sparse(model) {
+                    notes.push(temper_hint(model));
+                }
+                1
+            }
             Tempering::Temperatures(n) => n,
             Tempering::Auto => {
                 if is_sparse(model) {
@@ -117,6 +122,16 @@ impl SamplingPlan {
     pub fn tempered(&self) -> bool {
         self.sampler.tempering.is_some()
     }
+}
+
+/// Advice for an untempered run of sparse astrometry.
+pub fn temper_hint(model: &Model) -> String {
+    format!(
+        "only {} astrometric epochs and no tempering: a sparse orbit often has several \
+         period modes that an untempered ensemble does not cross (a large R-hat is the \
+         sign); set [sampler] temperatures = \"auto\" (or a number) to temper",
+        model.dataset().astrometry.len()
+    )
 }
 
 /// Checkpoint every few seconds of wall time.

@@ -239,6 +239,7 @@ fn metadata(
     model: &Model,
     outcome: &Outcome,
     modes: &[PeriodMode],
+    window: Option<(f64, f64)>,
 ) -> RunMetadata {
     let data = model.dataset();
     let mut entries = vec![(
@@ -261,7 +262,16 @@ fn metadata(
          and a per-instrument velocity offset"
             .to_owned(),
     ));
-    for (name, prior) in prior_lines(model) {
+    for (name, mut prior) in prior_lines(model) {
+        if let (Some((lo, hi)), "period") = (window, name.as_str()) {
+            // A run of `dyad periods`: the prior is cut to its window.
+            prior = format!(
+                "{prior}, restricted to the window {lo:.2} to {hi:.2} d \
+                 ({:.4} to {:.4} yr) and renormalised",
+                lo / 365.25,
+                hi / 365.25
+            );
+        }
         entries.push((format!("prior: {name}"), prior));
     }
     let parallax = match config.data.catalogue_parallax {
@@ -391,7 +401,8 @@ pub fn write_report(
     let draws = read_draws(files, model, outcome.burn_in)?;
     let summary = dyad_report::summarise(&draws.table)?;
     let modes = period_modes(&draws.table);
-    let meta = metadata(config, model, outcome, &modes);
+    let window = crate::run_folder::read_window(files)?;
+    let meta = metadata(config, model, outcome, &modes, window);
     let diagnostics = diagnostics_document(model, outcome, &modes);
     let folder = &files.folder;
     let physical = physical_only(&summary);
