@@ -16,7 +16,7 @@ use dyad_report::{
     DistributionPanel, ParameterInfo, PosteriorDraws, PosteriorSummary, RunMetadata,
     SkyMeasurement, SkyPlotInput, VelocityPlotInput,
 };
-use dyad_sampler::read_record_file;
+use dyad_sampler::for_each_record;
 
 use crate::check::prior_lines;
 use crate::fit::Outcome;
@@ -84,24 +84,27 @@ fn info_for(name: &str, unit: &str, mode: FitMode) -> ParameterInfo {
 
 /// Reads the chain file of a run and builds the posterior draws after burn-in.
 pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws> {
-    let records = read_record_file(files.chain())
-        .with_context(|| format!("reading the chain {}", files.chain().display()))?;
+    // Two passes over the chain file, one record at a time: the steps first
+    // (to place the burn-in and the thinning), then the kept records only,
+    // so a long chain is never held in memory whole.
+    let chain = files.chain();
+    let mut steps = Vec::new();
+    let (nw, vpw) = for_each_record(&chain, |step, _| steps.push(step))
+        .with_context(|| format!("reading the chain {}", chain.display()))?;
     let dim = model.dim();
-    let first = records.first_after(burn_in);
-    let n_records = records.len().saturating_sub(first);
-    let nw = records.n_walkers;
-    let vpw = records.values_per_walker;
+    let first = steps.partition_point(|&s| s <= burn_in);
+    let n_records = steps.len().saturating_sub(first);
     anyhow::ensure!(
         vpw == dim + 2,
         "{} holds {} values per walker, but the model has {} parameters",
-        files.chain().display(),
+        chain.display(),
         vpw,
         dim
     );
     anyhow::ensure!(
         n_records > 0,
         "{} holds no samples after the burn-in of {burn_in} steps: run longer",
-        files.chain().display()
+        chain.display()
     );
     let stride = (n_records * nw).div_ceil(MAX_DRAWS).max(1);
     let derived_names = model.derived_names_units();
@@ -119,17 +122,21 @@ pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws
     let mut sampled = Vec::new();
     let mut values = Vec::new();
     let mut log_posterior = Vec::new();
-    for r in (first..records.len()).step_by(stride) {
-        let record = &records.values[r * nw * vpw..(r + 1) * nw * vpw];
-        for w in 0..nw {
-            let v = &record[w * vpw..(w + 1) * vpw];
-            let x = &v[..dim];
-            sampled.extend_from_slice(x);
-            values.extend(model.derived(x));
-            values.extend_from_slice(x);
-            log_posterior.push(v[dim] + v[dim + 1]);
+    let mut r = 0;
+    for_each_record(&chain, |_, record| {
+        if r >= first && (r - first).is_multiple_of(stride) {
+            for w in 0..nw {
+                let v = &record[w * vpw..(w + 1) * vpw];
+                let x = &v[..dim];
+                sampled.extend_from_slice(x);
+                values.extend(model.derived(x));
+                values.extend_from_slice(x);
+                log_posterior.push(v[dim] + v[dim + 1]);
+            }
         }
-    }
+        r += 1;
+    })
+    .with_context(|| format!("reading the chain {}", chain.display()))?;
     let table = PosteriorDraws::new(params, values, log_posterior)?;
     Ok(Draws { sampled, table })
 }

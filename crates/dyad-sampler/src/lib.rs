@@ -70,5 +70,7 @@ pub use run::{
     checkpoint_step, resume, run, CheckpointConfig, Convergence, Progress, RunConfig, RunControl,
     RunDiagnostics, RunResult, RunStatus, StuckWalker,
 };
-pub use storage::{read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink};
+pub use storage::{
+    for_each_record, read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink,
+};
 pub use tempering::{TemperedLogLikelihoods, TemperingConfig};

@@ -18,7 +18,7 @@ use crate::history::History;
 use crate::init::{check_initial_ensemble, check_walker_count, place_walkers, Start};
 use crate::moves::{MoveMixture, Scratch};
 use crate::rng::{stream_rng, Stream, StreamRng};
-use crate::storage::{read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink};
+use crate::storage::{for_each_record, FileSink, MemorySink, RecordKind, SampleSink};
 use crate::team::{helper_count, StopOnDrop, Team};
 use crate::tempering::{Ladder, TemperedLogLikelihoods, TemperingConfig};
 
@@ -529,15 +529,6 @@ impl LadderStore {
         match self {
             LadderStore::Memory(m) => m,
             LadderStore::File(f) => f,
-        }
-    }
-    fn table(&mut self) -> Result<RecordTable, SamplerError> {
-        match self {
-            LadderStore::Memory(m) => Ok(m.table().clone()),
-            LadderStore::File(f) => {
-                f.sync()?;
-                read_record_file(f.path())
-            }
         }
     }
 }
@@ -1106,18 +1097,35 @@ fn finish(
     let betas: Vec<f64> = state.rungs.iter().map(|r| r.beta).collect();
     let tempered = match ladder_store {
         Some(store) => {
-            let table = store.table()?;
-            let nr = table.len();
-            let mut lls = vec![Vec::with_capacity(nr * state.n_walkers); betas.len()];
-            for r in 0..nr {
-                let rec = &table.values[r * betas.len() * state.n_walkers..];
+            // Record by record into one series per temperature: the records
+            // are never held twice (the ladder file can be the largest output
+            // of a long tempered run).
+            let n_temps = betas.len();
+            let nw = state.n_walkers;
+            let mut lls: Vec<Vec<f64>> = vec![Vec::new(); n_temps];
+            let mut split = |_: u64, rec: &[f64]| {
                 for (t, ll) in lls.iter_mut().enumerate() {
-                    ll.extend_from_slice(&rec[t * state.n_walkers..(t + 1) * state.n_walkers]);
+                    ll.extend_from_slice(&rec[t * nw..(t + 1) * nw]);
+                }
+            };
+            match store {
+                LadderStore::Memory(m) => {
+                    let table = m.table();
+                    for (r, &step) in table.steps.iter().enumerate() {
+                        split(
+                            step,
+                            &table.values[r * n_temps * nw..(r + 1) * n_temps * nw],
+                        );
+                    }
+                }
+                LadderStore::File(f) => {
+                    f.sync()?;
+                    for_each_record(f.path(), split)?;
                 }
             }
             Some(TemperedLogLikelihoods {
                 betas: betas.clone(),
-                n_walkers: state.n_walkers,
+                n_walkers: nw,
                 log_likelihoods: lls,
             })
         }

@@ -307,36 +307,54 @@ fn read_header(file: &mut File, path: &Path) -> Result<(usize, usize, u64), Samp
     Ok((word(1) as usize, word(2) as usize, word(3)))
 }
 
-/// Reads a whole record file (samples or tempered log-likelihoods). A partial
-/// record at the end (a run killed mid-write) is ignored.
-pub fn read_record_file(path: impl AsRef<Path>) -> Result<RecordTable, SamplerError> {
+/// Reads a record file one record at a time, without holding the file in
+/// memory: `visit(step, values)` is called for every whole record in order
+/// (a partial record at the end, from a run killed mid-write, is ignored).
+/// Returns `(n_walkers, values_per_walker)` from the header.
+pub fn for_each_record(
+    path: impl AsRef<Path>,
+    mut visit: impl FnMut(u64, &[f64]),
+) -> Result<(usize, usize), SamplerError> {
     let path = path.as_ref();
     let mut file = File::open(path).map_err(|e| SamplerError::io(path, e))?;
     let (n_walkers, values_per_walker, _) = read_header(&mut file, path)?;
-    let mut bytes = Vec::new();
-    file.read_to_end(&mut bytes)
-        .map_err(|e| SamplerError::io(path, e))?;
     let width = n_walkers * values_per_walker;
-    let record = 8 * (1 + width);
-    let n = bytes.len() / record;
-    let mut table = RecordTable {
-        n_walkers,
-        values_per_walker,
-        steps: Vec::with_capacity(n),
-        values: Vec::with_capacity(n * width),
-    };
+    let mut reader = std::io::BufReader::with_capacity(1 << 20, file);
+    let mut bytes = vec![0u8; 8 * (1 + width)];
+    let mut values = vec![0.0; width];
     let word = |c: &[u8]| {
         let mut b = [0u8; 8];
         b.copy_from_slice(c);
         b
     };
-    for rec in bytes.chunks_exact(record) {
-        table.steps.push(u64::from_le_bytes(word(&rec[..8])));
-        table.values.extend(
-            rec[8..]
-                .chunks_exact(8)
-                .map(|c| f64::from_le_bytes(word(c))),
-        );
+    loop {
+        match reader.read_exact(&mut bytes) {
+            Ok(()) => {}
+            Err(e) if e.kind() == std::io::ErrorKind::UnexpectedEof => break,
+            Err(e) => return Err(SamplerError::io(path, e)),
+        }
+        let step = u64::from_le_bytes(word(&bytes[..8]));
+        for (v, c) in values.iter_mut().zip(bytes[8..].chunks_exact(8)) {
+            *v = f64::from_le_bytes(word(c));
+        }
+        visit(step, &values);
     }
-    Ok(table)
+    Ok((n_walkers, values_per_walker))
+}
+
+/// Reads a whole record file (samples or tempered log-likelihoods). A partial
+/// record at the end (a run killed mid-write) is ignored.
+pub fn read_record_file(path: impl AsRef<Path>) -> Result<RecordTable, SamplerError> {
+    let mut steps = Vec::new();
+    let mut values = Vec::new();
+    let (n_walkers, values_per_walker) = for_each_record(path, |step, v| {
+        steps.push(step);
+        values.extend_from_slice(v);
+    })?;
+    Ok(RecordTable {
+        n_walkers,
+        values_per_walker,
+        steps,
+        values,
+    })
 }
