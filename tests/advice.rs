@@ -206,7 +206,7 @@ fn the_recommended_date_teaches_more_than_a_random_one() {
                 ),
             ] {
                 let mut all: Vec<&std::ffi::OsStr> = vec!["advise".as_ref(), run.as_os_str()];
-                all.extend(args.iter().map(|a| a.as_ref()));
+                all.extend(args.iter().map(std::ffi::OsStr::new));
                 let e = run_err(&all);
                 assert!(e.contains(why), "{args:?}: {e}");
             }
