@@ -13,6 +13,7 @@
 mod calibrate;
 mod check;
 mod density;
+mod error_summary;
 mod fit;
 mod periods;
 mod plan;
