@@ -30,7 +30,10 @@ pub fn error_model_description(model: &Model) -> String {
     for (k, name) in sources.iter().enumerate() {
         let mut terms = Vec::new();
         if priors.scale[k].fixed_value() != Some(1.0) {
-            terms.push(format!("error scale {}", priors.scale[k].prior().describe()));
+            terms.push(format!(
+                "error scale {}",
+                priors.scale[k].prior().describe()
+            ));
         }
         if priors.jitter_mas[k].fixed_value() != Some(0.0) {
             terms.push(format!(

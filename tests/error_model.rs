@@ -122,7 +122,10 @@ fn parameter<'a>(summary: &'a Value, name: &str) -> &'a Value {
 fn assert_inside_95(summary: &Value, name: &str, truth: f64) {
     let p = parameter(summary, name);
     let (lo, hi) = (p["q95"][0].as_f64().unwrap(), p["q95"][1].as_f64().unwrap());
-    assert!(lo <= truth && truth <= hi, "{name}: {truth} outside [{lo}, {hi}]");
+    assert!(
+        lo <= truth && truth <= hi,
+        "{name}: {truth} outside [{lo}, {hi}]"
+    );
 }
 
 #[test]
@@ -164,7 +167,12 @@ fn student_t_residuals_down_weight_a_ten_sigma_outlier() {
 distribution = "student_t"
 degrees_of_freedom = 4"#;
     let (summary, diagnostics) = simulate_and_fit(
-        &scenario(22, 24, sources, "outlier_epochs = [11]\noutlier_sigma = 10.0"),
+        &scenario(
+            22,
+            24,
+            sources,
+            "outlier_epochs = [11]\noutlier_sigma = 10.0",
+        ),
         &config(errors),
     );
     let stats = &diagnostics["error_model"]["astrometry_sources_at_map"][0];
@@ -178,7 +186,8 @@ degrees_of_freedom = 4"#;
 
 #[test]
 fn errors_as_given_earn_a_caution_when_a_source_is_misquoted() {
-    let sources = r#"[{ name = "speckle", error_factor = 3.0 }, { name = "imaging", error_factor = 1.0 }]"#;
+    let sources =
+        r#"[{ name = "speckle", error_factor = 3.0 }, { name = "imaging", error_factor = 1.0 }]"#;
     let (summary, diagnostics) = simulate_and_fit(&scenario(23, 30, sources, ""), &config(""));
     let entries = summary["metadata"].to_string();
     assert!(
@@ -191,7 +200,10 @@ fn errors_as_given_earn_a_caution_when_a_source_is_misquoted() {
         let s = &diagnostics["error_model"]["astrometry_sources_at_map"][k];
         s["chi_square"].as_f64().unwrap() / s["degrees_of_freedom"].as_f64().unwrap()
     };
-    assert!(per_dof(0) > 5.0 && per_dof(0) > 2.5 * per_dof(1), "{entries}");
+    assert!(
+        per_dof(0) > 5.0 && per_dof(0) > 2.5 * per_dof(1),
+        "{entries}"
+    );
 }
 
 #[test]

@@ -148,7 +148,11 @@ impl ErrorBlock {
                 Err(ModelError::InvalidPrior(format!(
                     "the prior on {what} ({}) must lie in [0, inf){}",
                     p.prior().describe(),
-                    if allow_zero { "" } else { " and exclude 0 when fixed" }
+                    if allow_zero {
+                        ""
+                    } else {
+                        " and exclude 0 when fixed"
+                    }
                 )))
             }
         };
@@ -159,7 +163,11 @@ impl ErrorBlock {
         }
         let mut jitter = Vec::with_capacity(names.len());
         for (p, name) in priors.jitter_mas.iter().zip(names) {
-            positive(p, &format!("the astrometric jitter of source '{name}'"), true)?;
+            positive(
+                p,
+                &format!("the astrometric jitter of source '{name}'"),
+                true,
+            )?;
             jitter.push(b.scalar(
                 p,
                 true,

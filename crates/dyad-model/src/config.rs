@@ -714,11 +714,14 @@ fn read_astrometry_errors(s: &Section<'_>) -> Result<AstrometryErrorSettings, Mo
             ))
         }
         (true, None) => Some(ScaledPrior::internal(
-            Prior::fixed(DEFAULT_DEGREES_OF_FREEDOM).map_err(|e| s.error("distribution", e.to_string()))?,
+            Prior::fixed(DEFAULT_DEGREES_OF_FREEDOM)
+                .map_err(|e| s.error("distribution", e.to_string()))?,
         )),
         (true, Some(toml::Value::Float(_) | toml::Value::Integer(_))) => {
-            let nu = s.f64("degrees_of_freedom")?.unwrap_or(DEFAULT_DEGREES_OF_FREEDOM);
-            if !(nu > 0.0) {
+            let nu = s
+                .f64("degrees_of_freedom")?
+                .unwrap_or(DEFAULT_DEGREES_OF_FREEDOM);
+            if nu.is_nan() || nu <= 0.0 {
                 return Err(s.error("degrees_of_freedom", format!("must be positive, got {nu}")));
             }
             Some(ScaledPrior::internal(
@@ -730,7 +733,9 @@ fn read_astrometry_errors(s: &Section<'_>) -> Result<AstrometryErrorSettings, Mo
     let mut sources = BTreeMap::new();
     if let Some(table) = s.sub("sources")? {
         for name in table.table.keys() {
-            let Some(one) = table.sub(name)? else { continue };
+            let Some(one) = table.sub(name)? else {
+                continue;
+            };
             one.allow_only(&["scale", "jitter_mas"])?;
             sources.insert(
                 name.clone(),

@@ -147,8 +147,7 @@ impl Model {
     /// outside the domain.
     pub fn astrometry_source_statistics(&self, x: &[f64]) -> Option<Vec<SourceStatistics>> {
         let residuals = self.residuals(x)?;
-        let parameters_per_observation =
-            self.dim() as f64 / self.observation_count().max(1) as f64;
+        let parameters_per_observation = self.dim() as f64 / self.observation_count().max(1) as f64;
         let out = self
             .layout()
             .astrometry_sources()
@@ -182,13 +181,18 @@ impl Model {
                 SourceStatistics {
                     name: name.clone(),
                     epochs: mine.len(),
-                    polar_epochs: mine.iter().filter(|r| r.form == ResidualForm::Polar).count(),
+                    polar_epochs: mine
+                        .iter()
+                        .filter(|r| r.form == ResidualForm::Polar)
+                        .count(),
                     rms_separation_mas: rms(ResidualForm::Polar, 0, 1.0),
                     rms_position_angle_deg: rms(ResidualForm::Polar, 1, 1.0f64.to_degrees()),
                     rms_offset_mas: offsets,
                     chi_square: mine.iter().map(|r| r.quadratic_form).sum(),
                     chi_square_quoted,
-                    degrees_of_freedom: 2.0 * mine.len() as f64 * (1.0 - parameters_per_observation),
+                    degrees_of_freedom: 2.0
+                        * mine.len() as f64
+                        * (1.0 - parameters_per_observation),
                     smallest_weight: mine.iter().map(|r| r.weight).fold(1.0, f64::min),
                 }
             })
@@ -433,17 +437,10 @@ impl Model {
         let l22 = (cov[2] - l21 * l21).max(0.0).sqrt();
         let k1 = k_hat[0] + l11 * z1;
         let k2 = k_hat[1] + l21 * z1 + l22 * z2;
-        if !(k1 + k2 > 0.0) {
+        if (k1 + k2).is_nan() || k1 + k2 <= 0.0 {
             return f64::NAN;
         }
-        laws::orbital_parallax_mas(
-            a_mas,
-            inc,
-            k1,
-            k2,
-            o.period_days,
-            o.eccentricity,
-        )
+        laws::orbital_parallax_mas(a_mas, inc, k1, k2, o.period_days, o.eccentricity)
     }
 
     /// Weighted least-squares (K1, K2) from the velocities alone, with the
@@ -648,7 +645,7 @@ fn solve_symmetric(a: &[f64], b: &[f64], n: usize) -> Option<Vec<f64>> {
                 sum -= l[i * n + k] * l[j * n + k];
             }
             if i == j {
-                if !(sum > 0.0) {
+                if sum.is_nan() || sum <= 0.0 {
                     return None;
                 }
                 l[i * n + i] = sum.sqrt();
@@ -684,7 +681,9 @@ fn hashed_normals(x: &[f64]) -> [f64; 2] {
     };
     let mut h: u64 = 0x9e37_79b9_7f4a_7c15;
     for v in x {
-        h = mix(h.wrapping_add(v.to_bits()).wrapping_add(0x9e37_79b9_7f4a_7c15));
+        h = mix(h
+            .wrapping_add(v.to_bits())
+            .wrapping_add(0x9e37_79b9_7f4a_7c15));
     }
     let a = mix(h.wrapping_add(1));
     let b = mix(h.wrapping_add(2));

@@ -247,13 +247,9 @@ impl Model {
                     } else {
                         1.0
                     };
-                    polar.quoted.push(
-                        sep_err_mas,
-                        pa_err_rad,
-                        corr,
-                        factor,
-                        source_of_epoch[n],
-                    );
+                    polar
+                        .quoted
+                        .push(sep_err_mas, pa_err_rad, corr, factor, source_of_epoch[n]);
                 }
                 RelativePosition::Cartesian {
                     dra_mas,
@@ -269,13 +265,9 @@ impl Model {
                     cartesian.dra_mas.push(dra_mas);
                     cartesian.ddec_mas.push(ddec_mas);
                     cartesian.inv.push(inv);
-                    cartesian.quoted.push(
-                        dra_err_mas,
-                        ddec_err_mas,
-                        corr,
-                        1.0,
-                        source_of_epoch[n],
-                    );
+                    cartesian
+                        .quoted
+                        .push(dra_err_mas, ddec_err_mas, corr, 1.0, source_of_epoch[n]);
                 }
             }
         }

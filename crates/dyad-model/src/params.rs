@@ -292,9 +292,7 @@ impl ModelPriors {
             offset_kms: vec![ScaledPrior::internal(checked(Prior::uniform(o0, o1))); n],
             jitter_kms: vec![ScaledPrior::internal(checked(Prior::log_uniform(j0, j1))); n],
             reference_epoch_jd: None,
-            astrometry_errors: AstrometryErrorPriors::as_given(
-                astrometry_sources(dataset).0.len(),
-            ),
+            astrometry_errors: AstrometryErrorPriors::as_given(astrometry_sources(dataset).0.len()),
         }
     }
 }

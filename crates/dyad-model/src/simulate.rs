@@ -446,7 +446,12 @@ fn read_astrometry(s: &Section<'_>, base: &Path) -> Result<AstrometryPlan, Model
     let epochs = epochs(s, scale)?;
     let mut outliers = Vec::new();
     if let Some(v) = s.get("outlier_epochs") {
-        let bad = || s.error("outlier_epochs", "must be a list of epoch numbers (0-based)");
+        let bad = || {
+            s.error(
+                "outlier_epochs",
+                "must be a list of epoch numbers (0-based)",
+            )
+        };
         let toml::Value::Array(items) = v else {
             return Err(bad());
         };

@@ -17,7 +17,13 @@ fn fixed(v: f64) -> ScaledPrior {
 
 /// One Cartesian epoch observed at (dra, ddec) and the velocities of the
 /// small joint data set; the model point is `invented_physical`.
-fn one_epoch_model(dra: f64, ddec: f64, scale: f64, jitter: f64, nu: Option<f64>) -> (Model, Vec<f64>) {
+fn one_epoch_model(
+    dra: f64,
+    ddec: f64,
+    scale: f64,
+    jitter: f64,
+    nu: Option<f64>,
+) -> (Model, Vec<f64>) {
     let mut data = small_joint_dataset();
     data.astrometry = vec![AstrometryEpoch {
         t_jd: 2_452_000.0,
@@ -52,14 +58,15 @@ fn astrometric_ln_l(dra: f64, ddec: f64, scale: f64, jitter: f64, nu: Option<f64
     let (a, b) = (r.residual[0], r.residual[1]);
     let det = s1 * s1 * s2 * s2 * (1.0 - c * c);
     let q = (s2 * s2 * a * a - 2.0 * c * s1 * s2 * a * b + s1 * s1 * b * b) / det;
-    let ln_velocities = reference.log_likelihood(&xr) - (-(2.0 * PI).ln() - 0.5 * det.ln() - 0.5 * q);
+    let ln_velocities =
+        reference.log_likelihood(&xr) - (-(2.0 * PI).ln() - 0.5 * det.ln() - 0.5 * q);
     model.log_likelihood(&x) - ln_velocities
 }
 
 /// A rescaled and widened Gaussian, and the Student t, by the closed forms:
 /// C = s^2 C_quoted + j^2 I; ln p = ln Gamma((nu + 2)/2) - ln Gamma(nu/2)
-/// - ln(nu pi) - 0.5 ln det C - (nu + 2)/2 ln(1 + Q/nu) (Lange, Little &
-/// Taylor 1989, eq. 1 with p = 2; Gamma(2.5)/Gamma(1.5) = 1.5 for nu = 3).
+/// minus ln(nu pi) + 0.5 ln det C + (nu + 2)/2 ln(1 + Q/nu) (Lange, Little
+/// & Taylor 1989, eq. 1 with p = 2; Gamma(2.5)/Gamma(1.5) = 1.5, nu = 3).
 #[test]
 fn scaled_and_student_t_densities_match_their_closed_forms() {
     let (model, x) = one_epoch_model(0.0, 0.0, 1.0, 0.0, None);
@@ -120,7 +127,11 @@ fn orbital_parallax_from_exact_velocities_is_the_true_parallax() {
     data.velocities = (0..40)
         .map(|k| {
             let t = 2_449_000.0 + 97.0 * k as f64;
-            let star = if k % 2 == 0 { Star::Primary } else { Star::Secondary };
+            let star = if k % 2 == 0 {
+                Star::Primary
+            } else {
+                Star::Secondary
+            };
             let instrument = (k / 2) % 2;
             VelocityPoint {
                 t_jd: t,
@@ -138,8 +149,16 @@ fn orbital_parallax_from_exact_velocities_is_the_true_parallax() {
     let get = |n: &str| derived[names.iter().position(|(m, _)| m == n).unwrap()];
     let orbital = get("orbital_parallax_mas");
     assert!((orbital / 40.0 - 1.0).abs() < 1e-6, "{orbital}");
-    let (k, p, e) = (get("k1_kms") + get("k2_kms"), get("period_days"), get("eccentricity"));
+    let (k, p, e) = (
+        get("k1_kms") + get("k2_kms"),
+        get("period_days"),
+        get("eccentricity"),
+    );
     let a_sini_au = 13750.9871 * (1.0 - e * e).sqrt() * k * p / 149_597_870.7;
-    let textbook = get("semi_major_axis_mas") * get("inclination_deg").to_radians().sin() / a_sini_au;
-    assert!((orbital / textbook - 1.0).abs() < 1e-6, "{orbital} vs {textbook}");
+    let textbook =
+        get("semi_major_axis_mas") * get("inclination_deg").to_radians().sin() / a_sini_au;
+    assert!(
+        (orbital / textbook - 1.0).abs() < 1e-6,
+        "{orbital} vs {textbook}"
+    );
 }
