@@ -10,3 +10,4 @@ mod likelihood;
 mod modes;
 mod simulate;
 mod start;
+mod velocities_only;
