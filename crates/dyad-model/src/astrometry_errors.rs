@@ -48,7 +48,7 @@ pub enum ResidualDistribution {
 }
 
 /// Degrees of freedom of the Student t when none are given: 4, a common
-/// robust choice (Lange, Little & Taylor 1989, sec. 5).
+/// robust choice (used by Lange, Little & Taylor 1989; from memory).
 pub const DEFAULT_DEGREES_OF_FREEDOM: f64 = 4.0;
 
 /// Priors of the astrometric error model, per source (index of
