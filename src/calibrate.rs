@@ -77,6 +77,9 @@ struct Settings {
     priors: toml::Table,
     /// `[sampler]`, passed into every run configuration (seed added).
     sampler: toml::Table,
+    /// `[astrometry_errors]`, passed verbatim into every run configuration;
+    /// the true error scales are drawn from its priors and simulated.
+    astrometry_errors: Option<toml::Table>,
 }
 
 fn integer(table: &toml::Table, key: &str, file: &Path) -> Result<Option<u64>> {
@@ -102,7 +105,8 @@ impl Settings {
     fn parse(text: &str, file: &Path) -> Result<Self> {
         let table: toml::Table =
             toml::from_str(text).with_context(|| format!("{}: not valid TOML", file.display()))?;
-        const KEYS: [&str; 8] = [
+        const KEYS: [&str; 9] = [
+            "astrometry_errors",
             "systems",
             "seed",
             "draws_per_system",
@@ -202,6 +206,7 @@ impl Settings {
             observations,
             priors,
             sampler,
+            astrometry_errors: sub_table(&table, "astrometry_errors", file)?,
         })
     }
 }
@@ -233,6 +238,9 @@ const STREAM_TIES: u64 = 4;
 struct Truth {
     system: toml::Table,
     instruments: BTreeMap<String, (f64, f64)>,
+    /// Each astrometric source's true error scale (its simulated noise is
+    /// that times the quoted errors).
+    error_factors: BTreeMap<String, f64>,
 }
 
 /// The true system of prior draw `x` in the layout of `model`.
@@ -285,9 +293,17 @@ fn truth_of(model: &Model, x: &[f64], name: &str) -> Result<Truth> {
         .zip(p.offsets_kms.iter().zip(&p.jitters_kms))
         .map(|(n, (&off, &jit))| (n.clone(), (off, jit)))
         .collect();
+    let layout = model.layout();
+    let error_factors = layout
+        .astrometry_sources()
+        .iter()
+        .enumerate()
+        .map(|(k, n)| (n.clone(), layout.error_scale(x, k)))
+        .collect();
     Ok(Truth {
         system: t,
         instruments,
+        error_factors,
     })
 }
 
@@ -320,12 +336,29 @@ fn write_system(
 ) -> Result<RunConfig> {
     fs::create_dir_all(folder).with_context(|| format!("creating {}", folder.display()))?;
     let mut scenario = settings.observations.clone();
-    let (system, instruments, noise_seed, noise) = match truth {
-        Some((t, seed)) => (t.system, t.instruments, seed, noise),
-        None => (template_system(), BTreeMap::new(), 1, false),
+    let (system, instruments, error_factors, noise_seed, noise) = match truth {
+        Some((t, seed)) => (t.system, t.instruments, t.error_factors, seed, noise),
+        None => (
+            template_system(),
+            BTreeMap::new(),
+            BTreeMap::new(),
+            1,
+            false,
+        ),
     };
     if let Some(toml::Value::Table(a)) = scenario.get_mut("astrometry") {
         a.insert("file".into(), "positions.csv".into());
+        if let Some(toml::Value::Array(list)) = a.get_mut("sources") {
+            for source in list.iter_mut() {
+                let toml::Value::Table(t) = source else {
+                    continue;
+                };
+                let name = t.get("name").and_then(|n| n.as_str()).map(str::trim);
+                if let Some(&factor) = name.and_then(|n| error_factors.get(n)) {
+                    t.insert("error_factor".into(), factor.into());
+                }
+            }
+        }
     }
     if let Some(toml::Value::Table(v)) = scenario.get_mut("velocities") {
         v.insert("file".into(), "velocities.csv".into());
@@ -375,6 +408,12 @@ fn write_system(
     }
     run.insert("data".into(), toml::Value::Table(data));
     run.insert("priors".into(), toml::Value::Table(settings.priors.clone()));
+    if let Some(errors) = &settings.astrometry_errors {
+        run.insert(
+            "astrometry_errors".into(),
+            toml::Value::Table(errors.clone()),
+        );
+    }
     let mut sampler = settings.sampler.clone();
     sampler.insert(
         "seed".into(),
@@ -789,6 +828,14 @@ pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()>
                 .position(|(n, _)| n == name)
                 .map(|k| (k, label))
         })
+        // And every sampled astrometric error scale.
+        .chain(
+            names
+                .iter()
+                .enumerate()
+                .filter(|(_, (n, _))| n.starts_with("error_scale["))
+                .map(|(k, (n, _))| (k, n.as_str())),
+        )
         .filter(|&(k, _)| varies_under_prior(&template, k))
         .collect();
     if tracked.is_empty() {

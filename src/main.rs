@@ -15,6 +15,7 @@ mod advise;
 mod calibrate;
 mod check;
 mod density;
+mod error_summary;
 mod fit;
 mod periods;
 mod plan;

@@ -264,10 +264,7 @@ fn metadata(
     }
     entries.push((
         "error model".to_owned(),
-        "Gaussian measurement errors as given (astrometric pairs with their correlation, \
-         position-angle residuals wrapped); per-instrument velocity jitter added in quadrature \
-         and a per-instrument velocity offset"
-            .to_owned(),
+        crate::error_summary::error_model_description(model),
     ));
     for (name, mut prior) in prior_lines(model) {
         if let (Some((lo, hi)), "period") = (window, name.as_str()) {
@@ -409,8 +406,12 @@ pub fn write_report(
     let summary = dyad_report::summarise(&draws.table)?;
     let modes = period_modes(&draws.table);
     let window = crate::run_folder::read_window(files)?;
-    let meta = metadata(config, model, outcome, &modes, window);
-    let diagnostics = diagnostics_document(model, outcome, &modes);
+    let mut meta = metadata(config, model, outcome, &modes, window);
+    let mut diagnostics = diagnostics_document(model, outcome, &modes);
+    let (error_lines, error_document) =
+        crate::error_summary::entries(config, model, &draws, &summary);
+    meta.entries.extend(error_lines);
+    diagnostics["error_model"] = error_document;
     let folder = &files.folder;
     let physical = physical_only(&summary);
     dyad_report::write_text_summary(&folder.join("summary.txt"), &meta, &physical)?;

@@ -1,12 +1,17 @@
 //! The joint log-posterior for 20, 100 and 1000 observations against the
 //! cost of the Kepler solves it contains (one per observation). Target: at
-//! most 1.5 times the Kepler solves. Results: crates/dyad-model/PERFORMANCE.md.
+//! most 1.5 times the Kepler solves. `log_posterior_error_model`: the same
+//! with two astrometric sources, each with a sampled error scale and
+//! jitter, and Student-t residuals with sampled degrees of freedom.
+//! Results: crates/dyad-model/PERFORMANCE.md.
 
 use criterion::{black_box, criterion_group, criterion_main, BenchmarkId, Criterion};
 
+use dyad_model::astrometry_errors::ResidualDistribution;
 use dyad_model::data::{AstrometryEpoch, Dataset, RelativePosition, Star, VelocityPoint};
 use dyad_model::likelihood::Model;
-use dyad_model::params::{ModelPriors, OrbitalParameters, PhysicalParameters};
+use dyad_model::params::{ModelPriors, OrbitalParameters, PhysicalParameters, ScaledPrior};
+use dyad_model::prior::Prior;
 use dyad_orbit::kepler::{EccentricAnomaly, KeplerSolver, LANES};
 
 fn truth() -> PhysicalParameters {
@@ -34,7 +39,7 @@ fn truth() -> PhysicalParameters {
 
 /// `n` observations: half astrometric epochs (alternately polar and
 /// Cartesian), half velocities of both stars from two instruments.
-fn model(n: usize) -> (Model, Vec<f64>) {
+fn model(n: usize, error_model: bool) -> (Model, Vec<f64>) {
     let n_astro = n / 2;
     let mut data = Dataset {
         instruments: vec!["a".into(), "b".into()],
@@ -78,7 +83,21 @@ fn model(n: usize) -> (Model, Vec<f64>) {
             instrument: (k / 2) % 2,
         });
     }
-    let model = Model::new(data.clone(), &ModelPriors::defaults(&data)).expect("valid model");
+    let mut priors = ModelPriors::defaults(&data);
+    if error_model {
+        // Two sources, each with a sampled scale and jitter, Student-t residuals.
+        for (k, a) in data.astrometry.iter_mut().enumerate() {
+            a.source = Some(["speckle", "imaging"][k % 2].to_owned());
+        }
+        priors = ModelPriors::defaults(&data);
+        let e = &mut priors.astrometry_errors;
+        let log_uniform =
+            |lo, hi| ScaledPrior::internal(Prior::log_uniform(lo, hi).expect("valid"));
+        e.scale = vec![log_uniform(0.1, 10.0); 2];
+        e.jitter_mas = vec![log_uniform(0.01, 10.0); 2];
+        e.distribution = ResidualDistribution::StudentT(log_uniform(1.0, 100.0));
+    }
+    let model = Model::new(data.clone(), &priors).expect("valid model");
     let x = model
         .layout()
         .from_physical(&truth())
@@ -89,7 +108,13 @@ fn model(n: usize) -> (Model, Vec<f64>) {
 fn bench(c: &mut Criterion) {
     let mut group = c.benchmark_group("log_posterior_vs_kepler");
     for n in [20usize, 100, 1000] {
-        let (model, x) = model(n);
+        let (model_errors, x_errors) = model(n, true);
+        let (model, x) = model(n, false);
+        group.bench_with_input(
+            BenchmarkId::new("log_posterior_error_model", n),
+            &n,
+            |b, _| b.iter(|| model_errors.log_posterior(black_box(&x_errors))),
+        );
         let times: Vec<f64> = model
             .dataset()
             .astrometry
@@ -131,7 +156,7 @@ fn bench(c: &mut Criterion) {
     }
     group.finish();
     // The parts of the fixed cost per call (independent of n).
-    let (model, x) = model(20);
+    let (model, x) = model(20, false);
     let mut parts = c.benchmark_group("per_call_parts");
     parts.bench_function("log_prior", |b| b.iter(|| model.log_prior(black_box(&x))));
     parts.bench_function("to_orbital_parameters", |b| {

@@ -15,6 +15,9 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
+use crate::astrometry_errors::{
+    astrometry_sources, AstrometryErrorPriors, ResidualDistribution, DEFAULT_DEGREES_OF_FREEDOM,
+};
 use crate::data::Dataset;
 use crate::error::ModelError;
 use crate::params::{InclinationPrior, ModelPriors, ScaledPrior};
@@ -76,6 +79,30 @@ pub struct InstrumentPriors {
     pub offset: Option<ScaledPrior>,
     /// `jitter_kms`.
     pub jitter: Option<ScaledPrior>,
+}
+
+/// The astrometric error model (`[astrometry_errors]`); `None`: the
+/// default (scale 1, no jitter, normal residuals).
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct AstrometryErrorSettings {
+    /// `scale`: prior of the error-scale factor of every source without its own.
+    pub scale: Option<ScaledPrior>,
+    /// `jitter_mas`: prior of the added jitter of every source without its own.
+    pub jitter_mas: Option<ScaledPrior>,
+    /// `distribution = "student_t"` with its `degrees_of_freedom` (prior or
+    /// fixed); `None`: normal residuals.
+    pub student_t: Option<ScaledPrior>,
+    /// `[astrometry_errors.sources.NAME]`: per-source `scale`, `jitter_mas`.
+    pub sources: BTreeMap<String, SourceErrorPriors>,
+}
+
+/// Error-model priors of one astrometric source.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct SourceErrorPriors {
+    /// `scale`.
+    pub scale: Option<ScaledPrior>,
+    /// `jitter_mas`.
+    pub jitter_mas: Option<ScaledPrior>,
 }
 
 /// An optional starting guess (`[start]`), in internal units; the starting
@@ -175,6 +202,8 @@ pub struct RunConfig {
     pub data: DataSettings,
     /// `[priors]`.
     pub priors: PriorSettings,
+    /// `[astrometry_errors]`.
+    pub astrometry_errors: AstrometryErrorSettings,
     /// `[start]`.
     pub start: StartValues,
     /// `[sampler]`.
@@ -325,7 +354,14 @@ impl RunConfig {
             prefix: String::new(),
             table: &table,
         };
-        root.allow_only(&["data", "priors", "start", "sampler", "output"])?;
+        root.allow_only(&[
+            "data",
+            "priors",
+            "astrometry_errors",
+            "start",
+            "sampler",
+            "output",
+        ])?;
 
         let data = match root.sub("data")? {
             Some(s) => read_data(&s, &base)?,
@@ -354,6 +390,10 @@ impl RunConfig {
             })?;
             priors.parallax = Some(ScaledPrior::internal(prior));
         }
+        let astrometry_errors = match root.sub("astrometry_errors")? {
+            Some(s) => read_astrometry_errors(&s)?,
+            None => AstrometryErrorSettings::default(),
+        };
         let start = match root.sub("start")? {
             Some(s) => read_start(&s, &priors)?,
             None => StartValues::default(),
@@ -377,6 +417,7 @@ impl RunConfig {
             file: path.to_owned(),
             data,
             priors,
+            astrometry_errors,
             start,
             sampler,
             output,
@@ -437,7 +478,55 @@ impl RunConfig {
             set(&mut m.jitter_kms[k], &ip.jitter);
         }
         m.reference_epoch_jd = self.data.reference_epoch_jd;
+        self.apply_astrometry_errors(dataset, &mut m.astrometry_errors)?;
         Ok(m)
+    }
+
+    /// The `[astrometry_errors]` table over the default (errors as given),
+    /// per-source tables matched to the sources in the data (a source named
+    /// in the file but absent from the data is an error naming the key).
+    fn apply_astrometry_errors(
+        &self,
+        dataset: &Dataset,
+        out: &mut AstrometryErrorPriors,
+    ) -> Result<(), ModelError> {
+        let e = &self.astrometry_errors;
+        let (names, _) = astrometry_sources(dataset);
+        for k in 0..names.len() {
+            if let Some(p) = e.scale {
+                out.scale[k] = p;
+            }
+            if let Some(p) = e.jitter_mas {
+                out.jitter_mas[k] = p;
+            }
+        }
+        for (name, sp) in &e.sources {
+            let Some(k) = names.iter().position(|n| n == name) else {
+                return Err(ModelError::at(
+                    &self.file,
+                    None,
+                    Some(&format!("astrometry_errors.sources.{name}")),
+                    format!(
+                        "no astrometric source '{name}' in the astrometry file (sources found: {})",
+                        if names.is_empty() {
+                            "none".to_owned()
+                        } else {
+                            names.join(", ")
+                        }
+                    ),
+                ));
+            };
+            if let Some(p) = sp.scale {
+                out.scale[k] = p;
+            }
+            if let Some(p) = sp.jitter_mas {
+                out.jitter_mas[k] = p;
+            }
+        }
+        if let Some(dof) = e.student_t {
+            out.distribution = ResidualDistribution::StudentT(dof);
+        }
+        Ok(())
     }
 }
 
@@ -595,6 +684,73 @@ fn read_priors(s: &Section<'_>) -> Result<PriorSettings, ModelError> {
         offset: prior_at(s, "offset_kms", 1.0, &ANY)?,
         jitter: prior_at(s, "jitter_kms", 1.0, &NON_NEGATIVE)?,
         instruments,
+    })
+}
+
+fn read_astrometry_errors(s: &Section<'_>) -> Result<AstrometryErrorSettings, ModelError> {
+    s.allow_only(&[
+        "scale",
+        "jitter_mas",
+        "distribution",
+        "degrees_of_freedom",
+        "sources",
+    ])?;
+    let student = match s.string("distribution")? {
+        None | Some("normal") => false,
+        Some("student_t") => true,
+        Some(other) => {
+            return Err(s.error(
+                "distribution",
+                format!("must be \"normal\" or \"student_t\", got \"{other}\""),
+            ))
+        }
+    };
+    let student_t = match (student, s.get("degrees_of_freedom")) {
+        (false, None) => None,
+        (false, Some(_)) => {
+            return Err(s.error(
+                "degrees_of_freedom",
+                "only used with distribution = \"student_t\"",
+            ))
+        }
+        (true, None) => Some(ScaledPrior::internal(
+            Prior::fixed(DEFAULT_DEGREES_OF_FREEDOM)
+                .map_err(|e| s.error("distribution", e.to_string()))?,
+        )),
+        (true, Some(toml::Value::Float(_) | toml::Value::Integer(_))) => {
+            let nu = s
+                .f64("degrees_of_freedom")?
+                .unwrap_or(DEFAULT_DEGREES_OF_FREEDOM);
+            if nu.is_nan() || nu <= 0.0 {
+                return Err(s.error("degrees_of_freedom", format!("must be positive, got {nu}")));
+            }
+            Some(ScaledPrior::internal(
+                Prior::fixed(nu).map_err(|e| s.error("degrees_of_freedom", e.to_string()))?,
+            ))
+        }
+        (true, Some(_)) => prior_at(s, "degrees_of_freedom", 1.0, &POSITIVE)?,
+    };
+    let mut sources = BTreeMap::new();
+    if let Some(table) = s.sub("sources")? {
+        for name in table.table.keys() {
+            let Some(one) = table.sub(name)? else {
+                continue;
+            };
+            one.allow_only(&["scale", "jitter_mas"])?;
+            sources.insert(
+                name.clone(),
+                SourceErrorPriors {
+                    scale: prior_at(&one, "scale", 1.0, &POSITIVE)?,
+                    jitter_mas: prior_at(&one, "jitter_mas", 1.0, &NON_NEGATIVE)?,
+                },
+            );
+        }
+    }
+    Ok(AstrometryErrorSettings {
+        scale: prior_at(s, "scale", 1.0, &POSITIVE)?,
+        jitter_mas: prior_at(s, "jitter_mas", 1.0, &NON_NEGATIVE)?,
+        student_t,
+        sources,
     })
 }
 

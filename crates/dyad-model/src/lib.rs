@@ -44,6 +44,7 @@
 //! let (lp, ll) = (model.log_prior(&x), model.log_likelihood(&x));
 //! assert!((model.log_posterior(&x) - (lp + ll)).abs() < 1e-9 * ll.abs().max(1.0));
 //! ```
+pub mod astrometry_errors;
 pub mod config;
 pub mod data;
 pub mod derived;

@@ -34,6 +34,7 @@ use std::f64::consts::{LN_2, PI, TAU};
 use dyad_orbit::kepler::LANES;
 use dyad_orbit::{laws, velocity, BlockVisitor, Orbit};
 
+use crate::astrometry_errors::astrometry_sources;
 use crate::config::RunConfig;
 use crate::data::{Dataset, RelativePosition, Star};
 use crate::error::ModelError;
@@ -71,6 +72,43 @@ impl InverseCovariances {
     }
 }
 
+/// The quoted covariances of a set of astrometric epochs and what the
+/// per-source error model needs to rescale and widen them
+/// ([`crate::astrometry_errors`]): (v11, v12, v22) of the quoted errors,
+/// the jitter's factor g on the second coordinate (1 / rho_obs^2 for a
+/// position angle in radians, 1 for an offset), the epoch's source index
+/// (precomputed here so that the hot loop only looks it up) and a weight
+/// (1, or 0 in the padding).
+#[derive(Debug, Clone, Default, PartialEq)]
+struct QuotedCovariances {
+    v11: Vec<f64>,
+    v12: Vec<f64>,
+    v22: Vec<f64>,
+    jitter_factor: Vec<f64>,
+    source: Vec<usize>,
+    weight: Vec<f64>,
+}
+
+impl QuotedCovariances {
+    fn push(&mut self, s1: f64, s2: f64, corr: f64, jitter_factor: f64, source: usize) {
+        self.v11.push(s1 * s1);
+        self.v12.push(corr * s1 * s2);
+        self.v22.push(s2 * s2);
+        self.jitter_factor.push(jitter_factor);
+        self.source.push(source);
+        self.weight.push(1.0);
+    }
+
+    fn pad(&mut self) {
+        pad_to_lanes(&mut self.v11, 1.0);
+        pad_to_lanes(&mut self.v12, 0.0);
+        pad_to_lanes(&mut self.v22, 1.0);
+        pad_to_lanes(&mut self.jitter_factor, 1.0);
+        pad_to_lanes(&mut self.source, 0);
+        pad_to_lanes(&mut self.weight, 0.0);
+    }
+}
+
 /// Polar astrometric epochs (separation and position angle), one array per
 /// quantity; all but `t` padded with zero-weight entries to a whole number
 /// of blocks of [`LANES`].
@@ -81,6 +119,7 @@ struct PolarEpochs {
     sin_pa: Vec<f64>,
     cos_pa: Vec<f64>,
     inv: InverseCovariances,
+    quoted: QuotedCovariances,
 }
 
 /// Cartesian astrometric epochs (dRA*, dDec), stored as [`PolarEpochs`].
@@ -90,6 +129,7 @@ struct CartesianEpochs {
     dra_mas: Vec<f64>,
     ddec_mas: Vec<f64>,
     inv: InverseCovariances,
+    quoted: QuotedCovariances,
 }
 
 /// Velocity epochs: the velocities one instrument took at one instant, of
@@ -168,12 +208,17 @@ pub struct Model {
     velocities: VelocityEpochs,
     /// Sum over epochs of -0.5 ln det(2 pi C).
     astrometry_ln_norm: f64,
+    /// Whether the astrometric errors are used as quoted (the precomputed
+    /// inverse covariances), or rescaled, widened or t-distributed per
+    /// source on every call.
+    errors_as_given: bool,
 }
 
 impl Model {
     /// Builds the model of a data set under the given priors.
     pub fn new(dataset: Dataset, priors: &ModelPriors) -> Result<Self, ModelError> {
         let layout = ParameterLayout::new(&dataset, priors)?;
+        let source_of_epoch = astrometry_sources(&dataset).1;
         let mut polar = PolarEpochs::default();
         let mut cartesian = CartesianEpochs::default();
         let mut astrometry_ln_norm = 0.0;
@@ -196,6 +241,15 @@ impl Model {
                     polar.sin_pa.push(pa_rad.sin());
                     polar.cos_pa.push(pa_rad.cos());
                     polar.inv.push(inv);
+                    // A jitter j mas on the sky is j / rho radians of position angle.
+                    let factor = if sep_mas > 0.0 {
+                        1.0 / (sep_mas * sep_mas)
+                    } else {
+                        1.0
+                    };
+                    polar
+                        .quoted
+                        .push(sep_err_mas, pa_err_rad, corr, factor, source_of_epoch[n]);
                 }
                 RelativePosition::Cartesian {
                     dra_mas,
@@ -211,6 +265,9 @@ impl Model {
                     cartesian.dra_mas.push(dra_mas);
                     cartesian.ddec_mas.push(ddec_mas);
                     cartesian.inv.push(inv);
+                    cartesian
+                        .quoted
+                        .push(dra_err_mas, ddec_err_mas, corr, 1.0, source_of_epoch[n]);
                 }
             }
         }
@@ -219,9 +276,11 @@ impl Model {
         pad_to_lanes(&mut polar.sin_pa, 0.0);
         pad_to_lanes(&mut polar.cos_pa, 1.0);
         polar.inv.pad();
+        polar.quoted.pad();
         pad_to_lanes(&mut cartesian.dra_mas, 0.0);
         pad_to_lanes(&mut cartesian.ddec_mas, 0.0);
         cartesian.inv.pad();
+        cartesian.quoted.pad();
 
         // One list of epochs per instrument: (t, [rv, err^2, weight] by slot).
         type Epoch = (f64, [[f64; 3]; 2]);
@@ -285,6 +344,7 @@ impl Model {
             }
         }
         Ok(Self {
+            errors_as_given: priors.astrometry_errors.is_as_given(),
             layout,
             dataset,
             polar,
@@ -398,19 +458,29 @@ impl Model {
         let Ok(orbit) = &built else {
             return f64::NEG_INFINITY;
         };
-        let mut polar = PolarMisfit {
-            orbit,
-            data: &self.polar,
-            chi2: [0.0; LANES],
+        let mut ll = if self.errors_as_given {
+            let mut polar = PolarMisfit {
+                orbit,
+                data: &self.polar,
+                sink: GivenErrors {
+                    inv: &self.polar.inv,
+                    chi2: [0.0; LANES],
+                },
+            };
+            orbit.for_each_block(&self.polar.t, &mut polar);
+            let mut cartesian = CartesianMisfit {
+                orbit,
+                data: &self.cartesian,
+                sink: GivenErrors {
+                    inv: &self.cartesian.inv,
+                    chi2: polar.sink.chi2,
+                },
+            };
+            orbit.for_each_block(&self.cartesian.t, &mut cartesian);
+            self.astrometry_ln_norm - 0.5 * cartesian.sink.chi2.iter().sum::<f64>()
+        } else {
+            self.astrometry_log_likelihood(orbit, x)
         };
-        orbit.for_each_block(&self.polar.t, &mut polar);
-        let mut cartesian = CartesianMisfit {
-            orbit,
-            data: &self.cartesian,
-            chi2: polar.chi2,
-        };
-        orbit.for_each_block(&self.cartesian.t, &mut cartesian);
-        let mut ll = self.astrometry_ln_norm - 0.5 * cartesian.chi2.iter().sum::<f64>();
         if self.velocities.count > 0 {
             let (c1, c2) = self.velocity_factors(o);
             let mut misfit = VelocityMisfit {
@@ -442,16 +512,135 @@ impl Model {
     }
 }
 
-/// Per-lane sums of the quadratic forms of the polar epochs. The lanes'
-/// sums are added up in a fixed order at the end (the same on every
-/// processor and thread count).
-struct PolarMisfit<'a> {
-    orbit: &'a Orbit,
-    data: &'a PolarEpochs,
+impl Model {
+    /// The astrometric ln likelihood under the per-source error model
+    /// (module docs of [`crate::astrometry_errors`]).
+    fn astrometry_log_likelihood(&self, orbit: &Orbit, x: &[f64]) -> f64 {
+        let mut polar = PolarMisfit {
+            orbit,
+            data: &self.polar,
+            sink: ScaledErrors::new(&self.polar.quoted, &self.layout, x),
+        };
+        orbit.for_each_block(&self.polar.t, &mut polar);
+        let mut cartesian = CartesianMisfit {
+            orbit,
+            data: &self.cartesian,
+            sink: polar.sink.continue_with(&self.cartesian.quoted),
+        };
+        orbit.for_each_block(&self.cartesian.t, &mut cartesian);
+        let sums = &cartesian.sink;
+        if !sums.finite {
+            return f64::NEG_INFINITY;
+        }
+        let n = (self.polar.t.len() + self.cartesian.t.len()) as f64;
+        let misfit = match sums.nu {
+            None => 0.5 * sums.chi2.iter().sum::<f64>(),
+            Some(nu) => 0.5 * (nu + 2.0) * sums.ln_t.value(),
+        };
+        -n * LN_2PI - 0.5 * sums.ln_det.value() - misfit
+    }
+}
+
+/// Where the astrometric residual pairs of a block go.
+trait PairSink {
+    /// Adds the residual pairs (r1[i], r2[i]) of epochs `first + i`.
+    fn add(&mut self, first: usize, r1: &[f64; LANES], r2: &[f64; LANES]);
+}
+
+/// Errors as quoted: per-lane sums of the quadratic forms with the
+/// precomputed inverse covariances. The lanes' sums are added up in a
+/// fixed order at the end (the same on every processor and thread count).
+struct GivenErrors<'a> {
+    inv: &'a InverseCovariances,
     chi2: [f64; LANES],
 }
 
-impl BlockVisitor for PolarMisfit<'_> {
+impl PairSink for GivenErrors<'_> {
+    #[inline(always)]
+    fn add(&mut self, first: usize, r1: &[f64; LANES], r2: &[f64; LANES]) {
+        for i in 0..LANES {
+            self.chi2[i] += self.inv.quadratic_form(first + i, r1[i], r2[i]);
+        }
+    }
+}
+
+/// Errors rescaled and widened per source: C = s^2 C_quoted + j^2 diag(1, g)
+/// built on every call, with per-lane sums of the quadratic forms (normal),
+/// of ln det C and of ln(1 + Q / nu) (Student t), the logarithms kept as
+/// mantissas and exponents ([`LogSum`]).
+struct ScaledErrors<'a> {
+    quoted: &'a QuotedCovariances,
+    layout: &'a ParameterLayout,
+    x: &'a [f64],
+    nu: Option<f64>,
+    chi2: [f64; LANES],
+    ln_det: LogSum,
+    ln_t: LogSum,
+    /// False once a covariance was singular or overflowed.
+    finite: bool,
+}
+
+impl<'a> ScaledErrors<'a> {
+    fn new(quoted: &'a QuotedCovariances, layout: &'a ParameterLayout, x: &'a [f64]) -> Self {
+        Self {
+            quoted,
+            layout,
+            x,
+            nu: layout.degrees_of_freedom(x),
+            chi2: [0.0; LANES],
+            ln_det: LogSum::new(),
+            ln_t: LogSum::new(),
+            finite: true,
+        }
+    }
+
+    /// The same sums, continued over another set of epochs.
+    fn continue_with(self, quoted: &'a QuotedCovariances) -> Self {
+        Self { quoted, ..self }
+    }
+}
+
+impl PairSink for ScaledErrors<'_> {
+    #[inline(always)]
+    fn add(&mut self, first: usize, r1: &[f64; LANES], r2: &[f64; LANES]) {
+        let c = self.quoted;
+        let mut det = [1.0; LANES];
+        let mut t = [1.0; LANES];
+        let inv_nu = self.nu.map_or(0.0, |nu| 1.0 / nu);
+        for i in 0..LANES {
+            let k = first + i;
+            let source = c.source[k];
+            let s = self.layout.error_scale(self.x, source);
+            let j = self.layout.astrometric_jitter_mas(self.x, source);
+            let (s2, j2) = (s * s, j * j);
+            let c11 = s2 * c.v11[k] + j2;
+            let c12 = s2 * c.v12[k];
+            let c22 = s2 * c.v22[k] + j2 * c.jitter_factor[k];
+            let d = c11 * c22 - c12 * c12;
+            let q = (c22 * r1[i] * r1[i] - 2.0 * c12 * r1[i] * r2[i] + c11 * r2[i] * r2[i]) / d;
+            let w = c.weight[k];
+            self.finite &= w == 0.0 || (d.is_normal() && d > 0.0 && d < 1e300 && q < 1e300);
+            self.chi2[i] += w * q;
+            // 1 in the padding (w = 0), exactly det C or 1 + Q / nu otherwise.
+            det[i] = w * d + (1.0 - w);
+            t[i] = w * (1.0 + q * inv_nu) + (1.0 - w);
+        }
+        self.ln_det.add_products(&det, &[1.0; LANES]);
+        if self.nu.is_some() {
+            self.ln_t.add_products(&t, &[1.0; LANES]);
+        }
+    }
+}
+
+/// The polar epochs' residual pairs (separation, position angle), block by
+/// block, into a [`PairSink`].
+struct PolarMisfit<'a, S> {
+    orbit: &'a Orbit,
+    data: &'a PolarEpochs,
+    sink: S,
+}
+
+impl<S: PairSink> BlockVisitor for PolarMisfit<'_, S> {
     #[inline(always)]
     fn visit(&mut self, first: usize, sin_e: &[f64; LANES], cos_e: &[f64; LANES]) {
         let p = self.data;
@@ -483,31 +672,31 @@ impl BlockVisitor for PolarMisfit<'_> {
                 d_pa[i] = residual_angle(num[i], den[i]);
             }
         }
-        for i in 0..LANES {
-            let k = first + i;
-            self.chi2[i] += p.inv.quadratic_form(k, p.sep_mas[k] - sep[i], d_pa[i]);
-        }
+        let d_sep: [f64; LANES] = std::array::from_fn(|i| p.sep_mas[first + i] - sep[i]);
+        self.sink.add(first, &d_sep, &d_pa);
     }
 }
 
-/// Per-lane sums of the quadratic forms of the Cartesian epochs.
-struct CartesianMisfit<'a> {
+/// The Cartesian epochs' residual pairs (dRA*, dDec) into a [`PairSink`].
+struct CartesianMisfit<'a, S> {
     orbit: &'a Orbit,
     data: &'a CartesianEpochs,
-    chi2: [f64; LANES],
+    sink: S,
 }
 
-impl BlockVisitor for CartesianMisfit<'_> {
+impl<S: PairSink> BlockVisitor for CartesianMisfit<'_, S> {
     #[inline(always)]
     fn visit(&mut self, first: usize, sin_e: &[f64; LANES], cos_e: &[f64; LANES]) {
         let c = self.data;
+        let mut r1 = [0.0; LANES];
+        let mut r2 = [0.0; LANES];
         for i in 0..LANES {
             let k = first + i;
             let at = self.orbit.sky_offset_from_sin_cos(sin_e[i], cos_e[i]);
-            self.chi2[i] += c
-                .inv
-                .quadratic_form(k, c.dra_mas[k] - at.dra, c.ddec_mas[k] - at.ddec);
+            r1[i] = c.dra_mas[k] - at.dra;
+            r2[i] = c.ddec_mas[k] - at.ddec;
         }
+        self.sink.add(first, &r1, &r2);
     }
 }
 

@@ -74,6 +74,7 @@ use std::f64::consts::{LN_2, PI, TAU};
 use rand::Rng;
 use rand_distr::Distribution;
 
+use crate::astrometry_errors::{astrometry_sources, AstrometryErrorPriors, ErrorBlock};
 use crate::data::{Dataset, Star};
 use crate::error::ModelError;
 use crate::prior::{Prior, PriorShape};
@@ -231,6 +232,9 @@ pub struct ModelPriors {
     /// Epoch at which the phase (mean longitude) is defined, JD. `None`: the
     /// mid-point of the data.
     pub reference_epoch_jd: Option<f64>,
+    /// The astrometric error model, per source
+    /// ([`crate::astrometry_errors::astrometry_sources`]).
+    pub astrometry_errors: AstrometryErrorPriors,
 }
 
 /// Default priors (documented in configs/README.md).
@@ -288,6 +292,7 @@ impl ModelPriors {
             offset_kms: vec![ScaledPrior::internal(checked(Prior::uniform(o0, o1))); n],
             jitter_kms: vec![ScaledPrior::internal(checked(Prior::log_uniform(j0, j1))); n],
             reference_epoch_jd: None,
+            astrometry_errors: AstrometryErrorPriors::as_given(astrometry_sources(dataset).0.len()),
         }
     }
 }
@@ -320,15 +325,23 @@ impl FitMode {
 
 /// A scalar quantity held fixed or sampled directly or through its logarithm.
 #[derive(Debug, Clone, Copy, PartialEq)]
-enum Coord {
+pub(crate) enum Coord {
     Fixed(f64),
     Linear(usize),
     Log(usize),
 }
 
 impl Coord {
+    /// The index of a coordinate sampled through its logarithm.
+    pub(crate) fn log_index(self) -> Option<usize> {
+        match self {
+            Coord::Log(i) => Some(i),
+            _ => None,
+        }
+    }
+
     #[inline]
-    fn value(self, x: &[f64]) -> f64 {
+    pub(crate) fn value(self, x: &[f64]) -> f64 {
         match self {
             Coord::Fixed(v) => v,
             Coord::Linear(i) => x[i],
@@ -338,7 +351,7 @@ impl Coord {
 
     /// ln prior density in the sampled coordinate, including the Jacobian.
     #[inline]
-    fn ln_prior(self, x: &[f64], prior: &ScaledPrior) -> f64 {
+    pub(crate) fn ln_prior(self, x: &[f64], prior: &ScaledPrior) -> f64 {
         match self {
             Coord::Fixed(_) => 0.0,
             Coord::Linear(i) => prior.ln_pdf(x[i]),
@@ -600,9 +613,15 @@ pub struct ParameterLayout {
     k2: Option<Coord>,
     offsets: Vec<Coord>,
     jitters: Vec<Coord>,
+    /// The astrometric error model (a block of its own, after the jitters).
+    errors: ErrorBlock,
+    /// The astrometric sources, in order of first appearance.
+    sources: Vec<String>,
 }
 
-struct Builder {
+/// Collects the names and units of the sampled coordinates while a layout
+/// is built.
+pub(crate) struct Builder {
     names: Vec<String>,
     units: Vec<String>,
 }
@@ -613,7 +632,13 @@ impl Builder {
         self.units.push(unit.to_owned());
         self.names.len() - 1
     }
-    fn scalar(&mut self, prior: &ScaledPrior, log: bool, name: &str, unit: &str) -> Coord {
+    pub(crate) fn scalar(
+        &mut self,
+        prior: &ScaledPrior,
+        log: bool,
+        name: &str,
+        unit: &str,
+    ) -> Coord {
         match prior.fixed_value() {
             Some(v) => Coord::Fixed(v),
             None if log => Coord::Log(self.push(name, unit)),
@@ -802,6 +827,12 @@ impl ParameterLayout {
                 ));
             }
         }
+        let sources = astrometry_sources(dataset).0;
+        let errors = if astrometric {
+            ErrorBlock::new(&mut b, &sources, &priors.astrometry_errors)?
+        } else {
+            ErrorBlock::new(&mut b, &[], &AstrometryErrorPriors::as_given(0))?
+        };
         let uniform_circle = ScaledPrior::internal(checked(Prior::uniform(0.0, TAU)));
         Ok(Self {
             mode,
@@ -826,7 +857,38 @@ impl ParameterLayout {
             k2,
             offsets,
             jitters,
+            errors,
+            sources,
         })
+    }
+
+    /// The astrometric sources, in order of first appearance (empty with
+    /// velocities alone).
+    pub fn astrometry_sources(&self) -> &[String] {
+        &self.sources
+    }
+
+    /// The astrometric error model's priors.
+    pub fn astrometry_error_priors(&self) -> &AstrometryErrorPriors {
+        self.errors.priors()
+    }
+
+    /// Error-scale factor of astrometric source `k`.
+    #[inline]
+    pub fn error_scale(&self, x: &[f64], k: usize) -> f64 {
+        self.errors.scale(x, k)
+    }
+
+    /// Added astrometric jitter of source `k`, mas.
+    #[inline]
+    pub fn astrometric_jitter_mas(&self, x: &[f64], k: usize) -> f64 {
+        self.errors.jitter_mas(x, k)
+    }
+
+    /// Degrees of freedom of the Student t residuals (`None`: normal).
+    #[inline]
+    pub fn degrees_of_freedom(&self, x: &[f64]) -> Option<f64> {
+        self.errors.degrees_of_freedom(x)
     }
 
     /// Which data the model explains.
@@ -1108,6 +1170,7 @@ impl ParameterLayout {
             let v = p.jitters_kms.get(k).copied();
             set(&mut x, *c, need(v, "an instrument jitter")?, "a jitter")?;
         }
+        self.errors.set_typical(&mut x);
         Ok(x)
     }
 
@@ -1219,6 +1282,7 @@ impl ParameterLayout {
         for (k, c) in self.jitters.iter().enumerate() {
             term("jitter", c.ln_prior(x, &pr.jitter_kms[k]));
         }
+        self.errors.for_each_prior_term(x, &mut term);
     }
 
     /// One draw from the prior, in sampled coordinates. Angle 2-vectors get
@@ -1337,6 +1401,7 @@ impl ParameterLayout {
                 draw(rng, &pr.jitter_kms[k], f64::MIN_POSITIVE, f64::INFINITY),
             );
         }
+        self.errors.sample_prior(rng, x, &draw);
     }
 
     /// Whether the inclination is a parameter (always with astrometry; with

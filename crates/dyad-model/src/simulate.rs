@@ -77,6 +77,13 @@ struct AstrometryPlan {
     epochs: Vec<f64>,
     form: Form,
     corr: f64,
+    /// `sources`: (name, true error / quoted error), assigned to the epochs
+    /// in turn; empty: no `source` column.
+    sources: Vec<(String, f64)>,
+    /// `outlier_epochs` (0-based) and `outlier_sigma`: those epochs are
+    /// displaced by that many true errors in the first coordinate.
+    outliers: Vec<usize>,
+    outlier_sigma: f64,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -351,6 +358,9 @@ fn read_astrometry(s: &Section<'_>, base: &Path) -> Result<AstrometryPlan, Model
         "dra_error_mas",
         "ddec_error_mas",
         "corr",
+        "sources",
+        "outlier_epochs",
+        "outlier_sigma",
     ])?;
     let file = base.join(
         s.string("file")?
@@ -394,12 +404,73 @@ fn read_astrometry(s: &Section<'_>, base: &Path) -> Result<AstrometryPlan, Model
     if !(corr > -1.0 && corr < 1.0) {
         return Err(s.error("corr", format!("must be in (-1, 1), got {corr}")));
     }
+    let mut sources = Vec::new();
+    match s.get("sources") {
+        None => {}
+        Some(toml::Value::Array(items)) => {
+            for (n, item) in items.iter().enumerate() {
+                let key = format!("sources[{n}]");
+                let toml::Value::Table(t) = item else {
+                    return Err(s.error(&key, "must be a table { name = ..., error_factor = ... }"));
+                };
+                let one = Section {
+                    file: s.file,
+                    prefix: s.dotted(&key),
+                    table: t,
+                };
+                one.allow_only(&["name", "error_factor"])?;
+                let name = one
+                    .string("name")?
+                    .ok_or_else(|| one.error("name", "missing the source name"))?;
+                if name.trim().is_empty() || name.contains([',', '"', '\n']) {
+                    return Err(one.error(
+                        "name",
+                        "must be non-empty, without commas, quotes or line breaks",
+                    ));
+                }
+                let factor = positive(
+                    &one,
+                    "error_factor",
+                    one.f64("error_factor")?.unwrap_or(1.0),
+                )?;
+                sources.push((name.trim().to_owned(), factor));
+            }
+        }
+        Some(other) => {
+            return Err(s.error(
+                "sources",
+                format!("must be a list of tables, found {}", describe_value(other)),
+            ))
+        }
+    }
+    let epochs = epochs(s, scale)?;
+    let mut outliers = Vec::new();
+    if let Some(v) = s.get("outlier_epochs") {
+        let bad = || {
+            s.error(
+                "outlier_epochs",
+                "must be a list of epoch numbers (0-based)",
+            )
+        };
+        let toml::Value::Array(items) = v else {
+            return Err(bad());
+        };
+        for item in items {
+            match item.as_integer() {
+                Some(k) if k >= 0 && (k as usize) < epochs.len() => outliers.push(k as usize),
+                _ => return Err(bad()),
+            }
+        }
+    }
     Ok(AstrometryPlan {
         file,
         scale,
-        epochs: epochs(s, scale)?,
+        epochs,
         form,
         corr,
+        sources,
+        outliers,
+        outlier_sigma: s.f64("outlier_sigma")?.unwrap_or(10.0),
     })
 }
 
@@ -589,24 +660,45 @@ impl Scenario {
         if let Some(plan) = &self.astrometry {
             let mut text = header.clone();
             let tcol = plan.scale.column_name();
+            let source_column = if plan.sources.is_empty() {
+                ""
+            } else {
+                ",source"
+            };
             match plan.form {
                 Form::Polar { arcsec, .. } => {
                     let u = if arcsec { "arcsec" } else { "mas" };
-                    let _ = writeln!(text, "{tcol},sep_{u},sep_err_{u},pa_deg,pa_err_deg,corr");
+                    let _ = writeln!(
+                        text,
+                        "{tcol},sep_{u},sep_err_{u},pa_deg,pa_err_deg,corr{source_column}"
+                    );
                 }
                 Form::Cartesian { .. } => {
                     let _ = writeln!(
                         text,
-                        "{tcol},dra_mas,ddec_mas,dra_err_mas,ddec_err_mas,corr"
+                        "{tcol},dra_mas,ddec_mas,dra_err_mas,ddec_err_mas,corr{source_column}"
                     );
                 }
             }
             let c = plan.corr;
-            for &t in &plan.epochs {
+            for (n, &t) in plan.epochs.iter().enumerate() {
                 let p = orbit.sky_offset(t);
                 // Correlated pair: r1 = s1 z1, r2 = s2 (c z1 + sqrt(1 - c^2) z2).
                 let (z1, z2) = (normal() * noise, normal() * noise);
-                let (n1, n2) = (z1, c * z1 + (1.0 - c * c).sqrt() * z2);
+                let (mut n1, mut n2) = (z1, c * z1 + (1.0 - c * c).sqrt() * z2);
+                // Mis-quoted errors: the noise is error_factor times the quoted error.
+                let mut source_cell = String::new();
+                if !plan.sources.is_empty() {
+                    let (name, factor) = &plan.sources[n % plan.sources.len()];
+                    n1 *= factor;
+                    n2 *= factor;
+                    if plan.outliers.contains(&n) {
+                        n1 += plan.outlier_sigma * factor;
+                    }
+                    source_cell = format!(",{name}");
+                } else if plan.outliers.contains(&n) {
+                    n1 += plan.outlier_sigma;
+                }
                 let time = plan.scale.from_jd(t);
                 match plan.form {
                     Form::Polar {
@@ -621,7 +713,7 @@ impl Scenario {
                         let (sd, ed) = if arcsec { (7, 7) } else { (4, 4) };
                         let _ = writeln!(
                             text,
-                            "{},{sep:.sd$},{sep_err:.ed$},{pa:.5},{pa_err_deg:.5},{c}",
+                            "{},{sep:.sd$},{sep_err:.ed$},{pa:.5},{pa_err_deg:.5},{c}{source_cell}",
                             fmt_time(time, plan.scale)
                         );
                     }
@@ -630,7 +722,7 @@ impl Scenario {
                         let ddec = p.ddec + ddec_err * n2;
                         let _ = writeln!(
                             text,
-                            "{},{dra:.4},{ddec:.4},{dra_err:.4},{ddec_err:.4},{c}",
+                            "{},{dra:.4},{ddec:.4},{dra_err:.4},{ddec_err:.4},{c}{source_cell}",
                             fmt_time(time, plan.scale)
                         );
                     }

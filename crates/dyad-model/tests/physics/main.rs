@@ -4,6 +4,7 @@
 
 mod common;
 mod config_errors;
+mod errors;
 mod jacobians;
 mod likelihood;
 mod modes;
