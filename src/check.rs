@@ -13,14 +13,15 @@ use dyad_model::likelihood::Model;
 use dyad_model::params::{FitMode, InclinationPrior, ScaledPrior};
 
 use crate::plan::SamplingPlan;
+use crate::terminal::say;
 
 /// `dyad check CONFIG`.
 pub fn check(config_path: &Path) -> Result<()> {
     let config = RunConfig::load(config_path)?;
     let model = Model::from_config(&config)?;
     let plan = SamplingPlan::new(&config, &model, None)?;
-    println!("{}", describe(&config, &model, &plan));
-    println!("configuration and data are valid.");
+    say!("{}", describe(&config, &model, &plan))?;
+    say!("configuration and data are valid.")?;
     Ok(())
 }
 

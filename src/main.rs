@@ -20,10 +20,12 @@ mod posterior;
 mod predict;
 mod progress;
 mod run_folder;
+mod terminal;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+use crate::terminal::{note, say};
 use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
 
@@ -198,7 +200,7 @@ fn run(cli: Cli) -> Result<()> {
             let written = dyad_model::simulate::run_scenario_file(&scenario, overwrite)
                 .with_context(|| format!("simulating {}", scenario.display()))?;
             for file in written {
-                println!("wrote {}", file.display());
+                say!("wrote {}", file.display())?;
             }
             Ok(())
         }
@@ -208,8 +210,11 @@ fn run(cli: Cli) -> Result<()> {
 fn main() -> ExitCode {
     match run(Cli::parse()) {
         Ok(()) => ExitCode::SUCCESS,
+        // The reader of a pipe stopped early (`dyad check ... | head`): it
+        // has what it wanted, so end quietly and successfully.
+        Err(e) if terminal::is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("error: {e:#}");
+            note!("error: {e:#}");
             ExitCode::FAILURE
         }
     }

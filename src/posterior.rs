@@ -21,6 +21,7 @@ use dyad_sampler::read_record_file;
 use crate::check::prior_lines;
 use crate::fit::Outcome;
 use crate::run_folder::{write_text, RunFiles};
+use crate::terminal::say;
 
 /// Most posterior draws kept for the report (records are thinned evenly
 /// beyond this; the chain file keeps them all).
@@ -407,8 +408,8 @@ pub fn write_report(
     fs::create_dir_all(&plots).with_context(|| format!("creating {}", plots.display()))?;
     write_plots(files, model, &draws, &summary)?;
     if !quiet {
-        println!("{}", dyad_report::text_summary(&meta, &physical));
-        println!("results in {}", folder.display());
+        say!("{}", dyad_report::text_summary(&meta, &physical))?;
+        say!("results in {}", folder.display())?;
     }
     Ok(())
 }
