@@ -10,10 +10,12 @@
 // table of the configuration file, not a documentation link.
 #![allow(rustdoc::broken_intra_doc_links)]
 
+mod astrometry_views;
 mod calibrate;
 mod check;
 mod density;
 mod fit;
+mod paper_table;
 mod periods;
 mod plan;
 mod posterior;

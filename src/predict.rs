@@ -116,6 +116,7 @@ pub fn predict(folder: &Path, epochs: &[f64], scale: &str) -> Result<()> {
             .collect(),
         best_track: None,
         predictions,
+        ..Default::default()
     };
     let files = dyad_report::plot_sky(&run.files.plots().join("predictions"), &input)?;
     say!("plot: {}", files.png.display())?;
