@@ -255,3 +255,208 @@ pub fn separation_input(
         points,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dyad_model::data::{AstrometryEpoch, Dataset};
+    use dyad_model::params::{ModelPriors, OrbitalParameters, PhysicalParameters};
+
+    // eta Coronae Borealis, J. Meeus, Astronomical Algorithms (2nd ed.,
+    // 1998), Example 57.a: P = 41.623 yr, T = 1934.008, e = 0.2763,
+    // a = 0.907 arcsec, i = 59.025, Omega = 23.717, omega = 219.907 deg.
+    const P_YR: f64 = 41.623;
+    const T_YR: f64 = 1934.008;
+    const E: f64 = 0.2763;
+    const A_MAS: f64 = 907.0;
+    const I_DEG: f64 = 59.025;
+    const NODE_DEG: f64 = 23.717;
+    const OMEGA_DEG: f64 = 219.907;
+    /// An invented parallax; the total mass follows from Kepler's third law
+    /// with k = 1.0000377738 (REFERENCE-VALUES.md, from IAU 2015 B3).
+    const PARALLAX_MAS: f64 = 50.0;
+
+    /// The book's epochs are decimal years; as Julian years their JD keep
+    /// t - T and P in the same proportion, so M is the book's.
+    fn jd(year: f64) -> f64 {
+        TimeScale::JulianYear.to_jd(year)
+    }
+
+    /// (dRA*, dDec) in mas at decimal year `t`, by hand from the DESIGN.md
+    /// formulas: Kepler's equation by Newton's method, Thiele-Innes
+    /// constants, dDec = A X + F Y, dRA* = B X + G Y.
+    fn hand_position(t: f64) -> (f64, f64) {
+        let m = std::f64::consts::TAU * (t - T_YR) / P_YR;
+        let mut big_e = m;
+        for _ in 0..50 {
+            big_e -= (big_e - E * big_e.sin() - m) / (1.0 - E * big_e.cos());
+        }
+        let (w, n, i) = (
+            OMEGA_DEG.to_radians(),
+            NODE_DEG.to_radians(),
+            I_DEG.to_radians(),
+        );
+        let a = A_MAS * (w.cos() * n.cos() - w.sin() * n.sin() * i.cos());
+        let b = A_MAS * (w.cos() * n.sin() + w.sin() * n.cos() * i.cos());
+        let f = A_MAS * (-w.sin() * n.cos() - w.cos() * n.sin() * i.cos());
+        let g = A_MAS * (-w.sin() * n.sin() + w.cos() * n.cos() * i.cos());
+        let x = big_e.cos() - E;
+        let y = (1.0 - E * E).sqrt() * big_e.sin();
+        (b * x + g * y, a * x + f * y)
+    }
+
+    fn polar(p: (f64, f64)) -> (f64, f64) {
+        (
+            p.0.hypot(p.1),
+            p.0.atan2(p.1).to_degrees().rem_euclid(360.0),
+        )
+    }
+
+    fn model_and_point(astrometry: Vec<AstrometryEpoch>) -> (Model, Vec<f64>) {
+        let dataset = Dataset {
+            astrometry,
+            velocities: Vec::new(),
+            instruments: Vec::new(),
+        };
+        let priors = ModelPriors::defaults(&dataset);
+        let model = Model::new(dataset, &priors).expect("model");
+        let a_au = A_MAS / PARALLAX_MAS;
+        let orbit = OrbitalParameters {
+            period_days: P_YR * 365.25,
+            eccentricity: E,
+            omega_rad: OMEGA_DEG.to_radians(),
+            mean_longitude_rad: 0.0,
+            t_peri_jd: jd(T_YR),
+            inclination_rad: Some(I_DEG.to_radians()),
+            node_rad: Some(NODE_DEG.to_radians()),
+            total_mass_msun: Some(1.000_037_773_8 * a_au.powi(3) / (P_YR * P_YR)),
+            parallax_mas: Some(PARALLAX_MAS),
+            semi_major_axis_au: Some(a_au),
+            semi_major_axis_mas: Some(A_MAS),
+            mass_ratio: None,
+            k1_kms: None,
+            k2_kms: None,
+        };
+        let x = model
+            .layout()
+            .from_physical(&PhysicalParameters {
+                orbit,
+                offsets_kms: Vec::new(),
+                jitters_kms: Vec::new(),
+            })
+            .expect("parameter vector");
+        (model, x)
+    }
+
+    #[test]
+    fn residual_table_agrees_with_a_hand_computation() {
+        // Measurements invented as the hand-computed position plus known
+        // offsets, at three epochs: two polar, one Cartesian with a
+        // correlated error pair.
+        let (rho80, theta80) = polar(hand_position(1980.0));
+        // Meeus, Example 57.a, gives theta = 318.4 deg, rho = 0.411 arcsec
+        // for 1980.0 (to full precision 318.42426 deg, 411.0178 mas,
+        // REFERENCE-VALUES.md): the hand computation is the book's.
+        assert!((theta80 - 318.42426).abs() < 2e-5, "{theta80}");
+        assert!((rho80 - 411.0178).abs() < 2e-4, "{rho80}");
+        let (rho60, theta60) = polar(hand_position(1960.5));
+        let (dra90, ddec90) = hand_position(1990.25);
+        let epochs = vec![
+            AstrometryEpoch {
+                t_jd: jd(1980.0),
+                position: RelativePosition::Polar {
+                    sep_mas: rho80 + 2.0,
+                    sep_err_mas: 4.0,
+                    pa_rad: (theta80 + 0.3).to_radians(),
+                    pa_err_rad: 0.5f64.to_radians(),
+                    corr: 0.0,
+                },
+                source: Some("speckle, 4 m".into()),
+            },
+            AstrometryEpoch {
+                t_jd: jd(1960.5),
+                position: RelativePosition::Polar {
+                    sep_mas: rho60 - 5.0,
+                    sep_err_mas: 10.0,
+                    pa_rad: (theta60 - 1.2).rem_euclid(360.0).to_radians(),
+                    pa_err_rad: 0.8f64.to_radians(),
+                    corr: 0.0,
+                },
+                source: None,
+            },
+            AstrometryEpoch {
+                t_jd: jd(1990.25),
+                position: RelativePosition::Cartesian {
+                    dra_mas: dra90 + 1.5,
+                    ddec_mas: ddec90 - 2.5,
+                    dra_err_mas: 3.0,
+                    ddec_err_mas: 2.0,
+                    corr: 0.3,
+                },
+                source: Some("space".into()),
+            },
+        ];
+        let (model, x) = model_and_point(epochs);
+        let rows = residual_rows(&model, &x).expect("rows");
+        assert_eq!(rows.len(), 3);
+
+        let r = &rows[0];
+        assert_eq!(r.form, MeasuredForm::Polar);
+        assert_eq!(r.source, "speckle, 4 m");
+        assert!((r.t_jyear - 1980.0).abs() < 1e-9);
+        assert!((r.model[0] - rho80).abs() < 1e-6, "{:?}", r.model);
+        assert!((r.model[1] - theta80).abs() < 1e-7, "{:?}", r.model);
+        assert!((r.residual[0] - 2.0).abs() < 1e-6);
+        assert!((r.residual[1] - 0.3).abs() < 1e-7);
+        assert!((r.residual[0] / r.error[0] - 0.5).abs() < 1e-6);
+        assert!((r.residual[1] / r.error[1] - 0.6).abs() < 1e-6);
+        assert!((r.chi_square - (0.25 + 0.36)).abs() < 1e-5);
+
+        let r = &rows[1];
+        assert_eq!(r.source, "");
+        assert!((r.residual[0] + 5.0).abs() < 1e-6);
+        assert!((r.residual[1] + 1.2).abs() < 1e-6, "{:?}", r.residual);
+
+        let r = &rows[2];
+        assert_eq!(r.form, MeasuredForm::Cartesian);
+        assert!((r.model[0] - dra90).abs() < 1e-6 && (r.model[1] - ddec90).abs() < 1e-6);
+        assert!((r.residual[0] - 1.5).abs() < 1e-6 && (r.residual[1] + 2.5).abs() < 1e-6);
+        // (z1^2 - 2 rho z1 z2 + z2^2) / (1 - rho^2), z = (0.5, -1.25).
+        let expected = (0.25 + 2.0 * 0.3 * 0.5 * 1.25 + 1.5625) / (1.0 - 0.09);
+        assert!((r.chi_square - expected).abs() < 1e-5, "{}", r.chi_square);
+    }
+
+    #[test]
+    fn nodes_lie_at_the_node_position_angle_and_periastron_at_rho_a_one_minus_e() {
+        let (model, x) = model_and_point(vec![AstrometryEpoch {
+            t_jd: jd(1980.0),
+            position: RelativePosition::Polar {
+                sep_mas: 411.0,
+                sep_err_mas: 4.0,
+                pa_rad: 318.4f64.to_radians(),
+                pa_err_rad: 0.01,
+                corr: 0.0,
+            },
+            source: None,
+        }]);
+        let (nodes, peri) = sky_marks(&model, &x).expect("marks");
+        // At the nodes the position angle is Omega or Omega + 180 (common
+        // practice: the line of nodes has position angle Omega).
+        let pa = |p: (f64, f64)| polar(p).1;
+        let d = (pa(nodes.ascending) - NODE_DEG).rem_euclid(180.0);
+        assert!(d.min(180.0 - d) < 1e-7, "{}", pa(nodes.ascending));
+        let d = (pa(nodes.descending) - NODE_DEG).rem_euclid(180.0);
+        assert!(d.min(180.0 - d) < 1e-7, "{}", pa(nodes.descending));
+        // Radius at the nodes r = a (1 - e^2) / (1 ± e cos omega): the sky
+        // projection leaves points on the line of nodes unshortened.
+        let w = OMEGA_DEG.to_radians();
+        let r_asc = A_MAS * (1.0 - E * E) / (1.0 + E * w.cos());
+        assert!((polar(nodes.ascending).0 - r_asc).abs() < 1e-6);
+        let r_desc = A_MAS * (1.0 - E * E) / (1.0 - E * w.cos());
+        assert!((polar(nodes.descending).0 - r_desc).abs() < 1e-6);
+        // Periastron: the hand position at T.
+        let (px, py) = hand_position(T_YR);
+        assert!((peri.0 - px).abs() < 1e-6 && (peri.1 - py).abs() < 1e-6);
+        assert!(!nodes.ascending_known, "astrometry alone: node modulo 180");
+    }
+}

@@ -69,3 +69,39 @@ pub fn element_rows(draws: &PosteriorDraws) -> Vec<ElementRow> {
         })
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dyad_report::ParameterInfo;
+
+    #[test]
+    fn periastron_time_becomes_a_besselian_epoch() {
+        // B1950.0 = JD 2433282.4235 (Lieske 1979, A&A 73, 282; Explanatory
+        // Supplement to the Astronomical Almanac, 1992, sect. 3.252).
+        let draws = PosteriorDraws::new(
+            vec![
+                ParameterInfo::linear("periastron_time_jd", "d", "T"),
+                ParameterInfo::linear("semi_major_axis_mas", "mas", "a"),
+            ],
+            vec![2433282.4235, 907.0, 2433282.4235, 907.0],
+            vec![0.0, 0.0],
+        )
+        .unwrap();
+        let rows = element_rows(&draws);
+        let symbols: Vec<(&str, &str)> = rows
+            .iter()
+            .map(|r| (r.symbol.as_str(), r.unit.as_str()))
+            .collect();
+        assert_eq!(
+            symbols,
+            [("T", "JD"), ("T", "Besselian yr"), ("a", "arcsec")]
+        );
+        assert!(
+            (rows[1].values[0] - 1950.0).abs() < 1e-6,
+            "{}",
+            rows[1].values[0]
+        );
+        assert!((rows[2].values[0] - 0.907).abs() < 1e-12);
+    }
+}

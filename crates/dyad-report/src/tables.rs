@@ -296,3 +296,127 @@ pub fn write_latex_elements_table(
             .map_err(|e| ReportError::io(path, e))
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn summary_of(values: &[f64], kind: ParameterKind) -> ParameterSummary {
+        let info = ParameterInfo {
+            name: "x".into(),
+            unit: String::new(),
+            label: "x".into(),
+            kind,
+        };
+        summarise_values(&info, values, values[0]).unwrap()
+    }
+
+    /// Draws whose median and 16/84 % quantiles are exactly m, m - b, m + a
+    /// (Hyndman & Fan definition 7 on 101 evenly placed points).
+    fn draws_with(m: f64, minus: f64, plus: f64) -> Vec<f64> {
+        (0..=100)
+            .map(|k| {
+                let p = k as f64 / 100.0;
+                if p <= 0.5 {
+                    m - minus * (0.5 - p) / 0.34
+                } else {
+                    m + plus * (p - 0.5) / 0.34
+                }
+            })
+            .collect()
+    }
+
+    #[test]
+    fn errors_keep_two_significant_digits_and_the_value_follows() {
+        // Common practice for quoting uncertainties: two significant digits
+        // in the smaller error, the value rounded to the same place.
+        let cases = [
+            ((12.3456, 0.0156, 0.0234), "$12.346^{+0.023}_{-0.016}$"),
+            ((1234.0, 150.0, 230.0), "$1230^{+230}_{-150}$"),
+            ((0.41937, 0.00142, 0.00139), "$0.4194^{+0.0014}_{-0.0014}$"),
+            // 0.0996 rounds to 0.100, three digits: quoted at 0.10.
+            ((5.0, 0.0996, 0.31), "$5.00^{+0.31}_{-0.10}$"),
+            ((-14.1932, 0.0703, 0.0711), "$-14.193^{+0.071}_{-0.070}$"),
+        ];
+        for ((m, minus, plus), expected) in cases {
+            let s = summary_of(&draws_with(m, minus, plus), ParameterKind::Linear);
+            assert_eq!(latex_value(&s), expected, "{m} -{minus} +{plus}");
+        }
+        assert_eq!(rounding_place(0.0156, 0.0234), Some(-3));
+        assert_eq!(rounding_place(150.0, 230.0), Some(1));
+        assert_eq!(rounding_place(0.0, 0.0), None);
+    }
+
+    #[test]
+    fn fixed_parameters_are_shown_as_fixed() {
+        let s = summary_of(&[0.25; 50], ParameterKind::Linear);
+        assert_eq!(latex_value(&s), "$0.2500$ (fixed)");
+    }
+
+    #[test]
+    fn angles_straddling_zero_are_reported_in_0_360() {
+        // Draws from 356 to 4 deg through 0: median 0 (or 360), reported as
+        // a value in [0, 360) with errors of about 2.7 deg either side.
+        let values: Vec<f64> = (0..=80).map(|k| (356.0 + 0.1 * k as f64) % 360.0).collect();
+        let s = summary_of(&values, ParameterKind::Angle { period_deg: 360.0 });
+        let text = latex_value(&s);
+        let median: f64 = text
+            .trim_start_matches('$')
+            .split('^')
+            .next()
+            .unwrap()
+            .parse()
+            .unwrap();
+        assert!((0.0..360.0).contains(&median), "{text}");
+        assert!(!(0.05..=359.95).contains(&median), "{text}");
+        assert!(text.contains("^{+2.7}_{-2.7}"), "{text}");
+        // An angle near 359.9 stays there rather than becoming -0.1.
+        let s = summary_of(
+            &[359.8, 359.9, 360.0 - 1e-3],
+            ParameterKind::Angle { period_deg: 360.0 },
+        );
+        assert!(latex_value(&s).starts_with("$359.9"), "{}", latex_value(&s));
+    }
+
+    #[test]
+    fn one_column_per_group_with_its_weight() {
+        let rows = [ElementRow {
+            symbol: "P".into(),
+            unit: "yr".into(),
+            kind: ParameterKind::Linear,
+            values: vec![10.0, 10.1, 9.9, 20.0, 20.2, 19.8, 20.1, 19.9],
+        }];
+        let groups = [0, 0, 0, 1, 1, 1, 1, 1];
+        let text = latex_elements_table("test", &rows, Some(&groups)).unwrap();
+        assert!(
+            text.contains("Mode 1 (weight 0.38) & Mode 2 (weight 0.62)"),
+            "{text}"
+        );
+        assert!(text.contains("\\begin{tabular}{llcc}"), "{text}");
+        let single = latex_elements_table("test", &rows, None).unwrap();
+        assert!(single.contains("Element & Unit & Value"), "{single}");
+        assert!(latex_elements_table("test", &rows, Some(&groups[..3])).is_err());
+    }
+
+    #[test]
+    fn residual_rows_fill_the_measured_form_only_and_quote_sources() {
+        let row = AstrometryResidualRow {
+            t_jd: 2451545.0,
+            t_jyear: 2000.0,
+            source: "speckle, \"4 m\"".into(),
+            form: MeasuredForm::Cartesian,
+            observed: [10.0, 20.0],
+            model: [9.0, 21.0],
+            residual: [1.0, -1.0],
+            error: [2.0, 4.0],
+            chi_square: 0.3125,
+        };
+        let cells = residual_cells(&row);
+        assert_eq!(cells.len(), RESIDUAL_COLUMNS.len());
+        assert_eq!(cells[2], "\"speckle, \"\"4 m\"\"\"");
+        assert_eq!(cells[3], "cartesian");
+        assert!(cells[4..14].iter().all(String::is_empty));
+        assert_eq!(&cells[14..19], ["10.0", "9.0", "1.0", "2.0", "0.5"]);
+        assert_eq!(cells[23], "-0.25");
+    }
+}

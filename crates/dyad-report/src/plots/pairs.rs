@@ -436,7 +436,7 @@ fn grey_cells(grid: &Grid2) -> impl Iterator<Item = Rectangle<(f64, f64)>> + '_ 
     (0..grid.ny).flat_map(move |iy| {
         (0..grid.nx).filter_map(move |ix| {
             let z = grid.at(ix, iy);
-            if !(peak > 0.0) || z < 0.01 * peak {
+            if peak.is_nan() || peak <= 0.0 || z < 0.01 * peak {
                 return None;
             }
             let shade = (255.0 * (1.0 - GREY_DEPTH * z / peak)).round() as u8;
