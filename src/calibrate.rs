@@ -39,6 +39,7 @@ use dyad_sampler::{MemorySink, RunControl, RunStatus};
 use crate::density::Posterior;
 use crate::plan::SamplingPlan;
 use crate::run_folder::write_text;
+use crate::terminal::{say, say_raw};
 
 /// The calibrated quantities: name in `Model::derived_names_units`, label.
 const TRACKED: [(&str, &str); 6] = [
@@ -958,8 +959,8 @@ pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()>
             "tracked": tracked.iter().map(|&(_, l)| l).collect::<Vec<_>>(),
         }))?,
     )?;
-    print!("{table}");
-    println!("wrote {}", settings.output.display());
+    say_raw!("{table}")?;
+    say!("wrote {}", settings.output.display())?;
     Ok(())
 }
 

@@ -11,22 +11,55 @@ use dyad_model::config::RunConfig;
 use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
 use dyad_model::params::{FitMode, InclinationPrior, ScaledPrior};
+use dyad_model::prior::{Prior, PriorShape};
 
 use crate::plan::SamplingPlan;
+use crate::terminal::say;
 
 /// `dyad check CONFIG`.
 pub fn check(config_path: &Path) -> Result<()> {
     let config = RunConfig::load(config_path)?;
     let model = Model::from_config(&config)?;
     let plan = SamplingPlan::new(&config, &model, None)?;
-    println!("{}", describe(&config, &model, &plan));
-    println!("configuration and data are valid.");
+    say!("{}", describe(&config, &model, &plan))?;
+    say!("configuration and data are valid.")?;
     Ok(())
 }
 
-/// A prior in the unit the user gave it in.
+/// A prior on an angle held in radians (a default, or one given in
+/// radians), described in degrees as every angle in dyad's files and
+/// reports is; `None` for a shape with no exact image in degrees.
+fn radian_prior_in_degrees(prior: &Prior) -> Option<String> {
+    // Degrees from radians, rounded to 1e-9 deg so that 2 pi reads 360.
+    let k = 180.0 / PI;
+    let d = |v: f64| {
+        if v.is_finite() {
+            (v * k * 1e9).round() / 1e9
+        } else {
+            v
+        }
+    };
+    let in_degrees = match prior.shape() {
+        PriorShape::Uniform { min, max } => Prior::uniform(d(min), d(max)),
+        PriorShape::LogUniform { min, max } => Prior::log_uniform(d(min), d(max)),
+        PriorShape::Normal { mean, sd } => Prior::normal(d(mean), d(sd)),
+        PriorShape::TruncatedNormal { mean, sd, min, max } => {
+            Prior::truncated_normal(d(mean), d(sd), d(min), d(max))
+        }
+        PriorShape::Fixed { value } => Prior::fixed(d(value)),
+        PriorShape::LogNormal { .. } | PriorShape::Beta { .. } => return None,
+    };
+    in_degrees.ok().map(|p| format!("{} deg", p.describe()))
+}
+
+/// A prior in the unit the user gave it in (angles always in degrees).
 pub fn describe_prior(p: &ScaledPrior, internal_unit: &str) -> String {
     let s = p.scale();
+    if internal_unit == "rad" && (s - 1.0).abs() < 1e-15 {
+        if let Some(text) = radian_prior_in_degrees(p.prior()) {
+            return text;
+        }
+    }
     let unit = if (s - 365.25).abs() < 1e-9 {
         "yr"
     } else if (s - PI / 180.0).abs() < 1e-15 {

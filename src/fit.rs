@@ -21,6 +21,7 @@ use crate::density::Posterior;
 use crate::plan::{checkpoint_every, SamplingPlan};
 use crate::progress::ProgressBar;
 use crate::run_folder::{write_text, ExistingRun, Provenance, RunFiles};
+use crate::terminal::note;
 
 /// Options of `dyad fit`.
 pub struct FitOptions {
@@ -259,8 +260,8 @@ pub fn fit(config_path: &Path, options: &FitOptions) -> Result<()> {
     }
     let plan = SamplingPlan::new(&config, &model, Some(checkpoint))?;
     if !options.quiet {
-        eprintln!("{}", crate::check::describe(&config, &model, &plan));
-        eprintln!("searching for a starting point ...");
+        note!("{}", crate::check::describe(&config, &model, &plan));
+        note!("searching for a starting point ...");
     }
     let start = starting_ensemble(&model, &config, &plan)?;
     let density = Posterior::new(&model);
@@ -288,7 +289,7 @@ pub fn resume(folder: &Path, max_steps: Option<u64>, quiet: bool) -> Result<()> 
         );
     }
     if !quiet {
-        eprintln!("resuming at step {done} of {}", plan.sampler.max_steps);
+        note!("resuming at step {done} of {}", plan.sampler.max_steps);
     }
     // A run restricted to a period window (made by `dyad periods`) resumes
     // with the same restriction.
@@ -331,10 +332,10 @@ pub fn finish(
     }
     outcome.write(files)?;
     for w in &outcome.warnings {
-        eprintln!("warning: {w}");
+        note!("warning: {w}");
     }
     if result.status == RunStatus::Cancelled {
-        eprintln!(
+        note!(
             "stopped at step {} of {}; the state is checkpointed: continue with `dyad resume {}`",
             result.steps,
             plan.sampler.max_steps,

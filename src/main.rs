@@ -12,21 +12,25 @@
 #![allow(rustdoc::broken_intra_doc_links)]
 
 mod advise;
+mod astrometry_views;
 mod calibrate;
 mod check;
 mod density;
 mod error_summary;
 mod fit;
+mod paper_table;
 mod periods;
 mod plan;
 mod posterior;
 mod predict;
 mod progress;
 mod run_folder;
+mod terminal;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+use crate::terminal::{note, say};
 use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
 
@@ -272,7 +276,7 @@ fn run(cli: Cli) -> Result<()> {
             let written = dyad_model::simulate::run_scenario_file(&scenario, overwrite)
                 .with_context(|| format!("simulating {}", scenario.display()))?;
             for file in written {
-                println!("wrote {}", file.display());
+                say!("wrote {}", file.display())?;
             }
             Ok(())
         }
@@ -282,8 +286,11 @@ fn run(cli: Cli) -> Result<()> {
 fn main() -> ExitCode {
     match run(Cli::parse()) {
         Ok(()) => ExitCode::SUCCESS,
+        // The reader of a pipe stopped early (`dyad check ... | head`): it
+        // has what it wanted, so end quietly and successfully.
+        Err(e) if terminal::is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("error: {e:#}");
+            note!("error: {e:#}");
             ExitCode::FAILURE
         }
     }

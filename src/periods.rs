@@ -26,6 +26,7 @@ use crate::fit::{checkpoint_config, finish, open_run_folder, sample_fresh, start
 use crate::plan::SamplingPlan;
 use crate::posterior::{period_modes, read_draws};
 use crate::run_folder::{write_text, write_window, RunFiles};
+use crate::terminal::{note, say};
 
 /// Options of `dyad periods`.
 pub struct PeriodOptions {
@@ -132,9 +133,7 @@ fn discover_windows(
     options: &PeriodOptions,
 ) -> Result<Vec<(f64, f64)>> {
     if !options.quiet {
-        eprintln!(
-            "no period windows configured: a tempered run over the whole prior finds them ..."
-        );
+        note!("no period windows configured: a tempered run over the whole prior finds them ...");
     }
     let (files, _) = tempered_run(
         &folder.join("survey"),
@@ -236,7 +235,7 @@ pub fn periods(config_path: &Path, options: &PeriodOptions) -> Result<()> {
             );
         }
         if !options.quiet {
-            eprintln!(
+            note!(
                 "window {} of {}: {}",
                 k + 1,
                 windows.len(),
@@ -368,8 +367,8 @@ fn write_comparison(folder: &Path, results: &[WindowResult], quiet: bool) -> Res
         &summaries,
     )?;
     if !quiet {
-        println!("{table}");
-        println!("results in {}", folder.display());
+        say!("{table}")?;
+        say!("results in {}", folder.display())?;
     }
     Ok(())
 }

@@ -21,13 +21,11 @@ use dyad_sampler::for_each_record;
 use crate::check::prior_lines;
 use crate::fit::Outcome;
 use crate::run_folder::{write_text, RunFiles};
+use crate::terminal::say;
 
 /// Most posterior draws kept for the report (records are thinned evenly
 /// beyond this; the chain file keeps them all).
 pub const MAX_DRAWS: usize = 40_000;
-
-/// Posterior orbits drawn on the sky plot.
-const SKY_TRACKS: usize = 100;
 
 /// Posterior draws: sampled coordinates and physical quantities.
 pub struct Draws {
@@ -424,10 +422,17 @@ pub fn write_report(
     )?;
     let plots = files.plots();
     fs::create_dir_all(&plots).with_context(|| format!("creating {}", plots.display()))?;
-    write_plots(files, model, &draws, &summary)?;
+    write_plots(
+        files,
+        model,
+        &draws,
+        &summary,
+        config.output.orbits_on_sky_plot,
+    )?;
+    write_tables(folder, model, &draws, &summary)?;
     if !quiet {
-        println!("{}", dyad_report::text_summary(&meta, &physical));
-        println!("results in {}", folder.display());
+        say!("{}", dyad_report::text_summary(&meta, &physical))?;
+        say!("results in {}", folder.display())?;
     }
     Ok(())
 }
@@ -436,11 +441,39 @@ fn map_point<'a>(draws: &'a Draws, summary: &PosteriorSummary, dim: usize) -> &'
     &draws.sampled[summary.map_draw * dim..(summary.map_draw + 1) * dim]
 }
 
+/// The astrometric residuals at the MAP draw and the LaTeX elements table.
+fn write_tables(
+    folder: &std::path::Path,
+    model: &Model,
+    draws: &Draws,
+    summary: &PosteriorSummary,
+) -> Result<()> {
+    let map_x = map_point(draws, summary, model.dim());
+    if !model.dataset().astrometry.is_empty() {
+        if let Some(rows) = crate::astrometry_views::residual_rows(model, map_x) {
+            dyad_report::write_astrometry_residuals_csv(
+                &folder.join("astrometry-residuals.csv"),
+                &rows,
+            )?;
+        }
+    }
+    // One column of values until draws carry a mode index (then pass it
+    // as the grouping).
+    dyad_report::write_latex_elements_table(
+        &folder.join("elements.tex"),
+        "Orbital elements and masses (dyad posterior)",
+        &crate::paper_table::element_rows(&draws.table),
+        None,
+    )?;
+    Ok(())
+}
+
 fn write_plots(
     files: &RunFiles,
     model: &Model,
     draws: &Draws,
     summary: &PosteriorSummary,
+    sky_orbits: usize,
 ) -> Result<()> {
     let plots = files.plots();
     let table = &draws.table;
@@ -453,7 +486,7 @@ fn write_plots(
             .filter(|n| table.index_of(n).is_some())
             .collect()
     };
-    let corner = match model.mode() {
+    let pairs = match model.mode() {
         FitMode::Joint => present(&[
             "period_years",
             "eccentricity",
@@ -480,11 +513,11 @@ fn write_plots(
             "m2_sin3i_msun",
         ]),
     };
-    dyad_report::plot_corner(
-        &plots.join("corner"),
+    dyad_report::plot_pairs(
+        &plots.join("pairs"),
         "Posterior of the main parameters",
         table,
-        &corner,
+        &pairs,
     )?;
 
     let panels: Vec<DistributionPanel> = present(&[
@@ -512,7 +545,14 @@ fn write_plots(
     }
 
     if model.mode() != FitMode::VelocitiesOnly {
-        dyad_report::plot_sky(&plots.join("sky"), &sky_input(model, draws, map_x))?;
+        dyad_report::plot_sky(
+            &plots.join("sky"),
+            &sky_input(model, draws, map_x, sky_orbits),
+        )?;
+        if let Some(input) = crate::astrometry_views::separation_input(model, &draws.sampled, map_x)
+        {
+            dyad_report::plot_separation_and_angle(&plots.join("separation-and-angle"), &input)?;
+        }
     }
     if model.mode() != FitMode::AstrometryOnly {
         if let Some(input) = velocity_input(model, map_x) {
@@ -554,6 +594,7 @@ pub fn sky_measurement(p: &RelativePosition) -> SkyMeasurement {
                 ddec: sep_mas * c,
                 cov,
                 label: String::new(),
+                model: None,
             }
         }
         RelativePosition::Cartesian {
@@ -572,6 +613,7 @@ pub fn sky_measurement(p: &RelativePosition) -> SkyMeasurement {
                     [off, ddec_err_mas * ddec_err_mas],
                 ],
                 label: String::new(),
+                model: None,
             }
         }
     }
@@ -592,26 +634,33 @@ pub fn orbit_track(model: &Model, x: &[f64], points: usize) -> Option<Vec<(f64, 
     )
 }
 
-fn sky_input(model: &Model, draws: &Draws, map_x: &[f64]) -> SkyPlotInput {
+fn sky_input(model: &Model, draws: &Draws, map_x: &[f64], n_tracks: usize) -> SkyPlotInput {
     let dim = model.dim();
     let n = draws.sampled.len() / dim;
-    let step = (n / SKY_TRACKS).max(1);
+    let step = (n / n_tracks.max(1)).max(1);
     let tracks = (0..n)
         .step_by(step)
-        .take(SKY_TRACKS)
+        .take(n_tracks)
         .filter_map(|d| orbit_track(model, &draws.sampled[d * dim..(d + 1) * dim], 240))
         .collect();
+    let model_at = |t: f64| model.predict_position(map_x, t).map(|p| (p.dra, p.ddec));
+    let marks = crate::astrometry_views::sky_marks(model, map_x);
     SkyPlotInput {
         title: "Relative orbit on the sky".to_owned(),
         measurements: model
             .dataset()
             .astrometry
             .iter()
-            .map(|e| sky_measurement(&e.position))
+            .map(|e| SkyMeasurement {
+                model: model_at(e.t_jd),
+                ..sky_measurement(&e.position)
+            })
             .collect(),
         tracks,
         best_track: orbit_track(model, map_x, 480),
         predictions: Vec::new(),
+        nodes: marks.map(|m| m.0),
+        periastron: marks.map(|m| m.1),
     }
 }
 

@@ -16,6 +16,7 @@ use dyad_report::SkyPrediction;
 use crate::fit::Outcome;
 use crate::posterior::{orbit_track, read_draws, sky_measurement};
 use crate::run_folder::{write_text, ExistingRun};
+use crate::terminal::{say, say_raw};
 
 /// Circular median-centred statistics of position angles (degrees): the
 /// draws are unwrapped around their circular mean first.
@@ -97,7 +98,7 @@ pub fn predict(folder: &Path, epochs: &[f64], scale: &str) -> Result<()> {
             label: format!("{epoch}"),
         });
     }
-    print!("{table}");
+    say_raw!("{table}")?;
     write_text(&run.files.folder.join("predictions.txt"), &table)?;
     let step = (n / 100).max(1);
     let input = dyad_report::SkyPlotInput {
@@ -115,8 +116,9 @@ pub fn predict(folder: &Path, epochs: &[f64], scale: &str) -> Result<()> {
             .collect(),
         best_track: None,
         predictions,
+        ..Default::default()
     };
     let files = dyad_report::plot_sky(&run.files.plots().join("predictions"), &input)?;
-    println!("plot: {}", files.png.display());
+    say!("plot: {}", files.png.display())?;
     Ok(())
 }

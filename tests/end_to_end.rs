@@ -123,7 +123,13 @@ fn fit_recovers_the_simulated_system_and_writes_a_complete_run_folder() {
     assert_eq!(header.split(',').count(), names.len() + 1, "{header}");
     assert!(csv.lines().count() > 1000);
     // The plots exist, decode, have a sensible size and are not blank.
-    for plot in ["corner", "sky", "velocities", "masses"] {
+    for plot in [
+        "pairs",
+        "sky",
+        "separation-and-angle",
+        "velocities",
+        "masses",
+    ] {
         let png = run.join("plots").join(format!("{plot}.png"));
         let img = image::open(&png)
             .unwrap_or_else(|e| panic!("{}: {e}", png.display()))
@@ -144,6 +150,23 @@ fn fit_recovers_the_simulated_system_and_writes_a_complete_run_folder() {
         assert!(var > 100.0, "{plot} looks blank (pixel variance {var})");
         assert!(run.join("plots").join(format!("{plot}.svg")).is_file());
     }
+    // The residual table has a row per astrometric epoch; the LaTeX table
+    // of elements quotes the periastron time as a Besselian epoch too.
+    let residuals = fs::read_to_string(run.join("astrometry-residuals.csv")).unwrap();
+    let positions_file =
+        fs::read_to_string(dir.path().join("quill-and-ember-positions.csv")).unwrap();
+    // Data rows start with their epoch (a number); the header and comment
+    // lines do not.
+    let epochs = positions_file
+        .lines()
+        .filter(|l| l.trim_start().starts_with(|c: char| c.is_ascii_digit()))
+        .count();
+    assert_eq!(residuals.lines().count(), epochs + 1, "{residuals}");
+    let latex = fs::read_to_string(run.join("elements.tex")).unwrap();
+    assert!(
+        latex.contains("Besselian yr") && latex.contains("\\end{tabular}"),
+        "{latex}"
+    );
     // Provenance: the configuration copy and data checksums.
     let provenance = read_json(&run.join("provenance.json"));
     assert_eq!(provenance["data"].as_array().map(Vec::len), Some(2));

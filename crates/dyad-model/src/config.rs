@@ -191,7 +191,15 @@ pub struct OutputSettings {
     /// `folder`, resolved relative to the configuration file (default
     /// `dyad-run` beside it).
     pub folder: PathBuf,
+    /// `orbits_on_sky_plot`: posterior orbits drawn on the sky plot
+    /// (default [`DEFAULT_SKY_ORBITS`]).
+    pub orbits_on_sky_plot: usize,
 }
+
+/// Posterior orbits drawn on the sky plot unless `[output]
+/// orbits_on_sky_plot` says otherwise: enough to show the spread, few
+/// enough that the measurements stay readable.
+pub const DEFAULT_SKY_ORBITS: usize = 40;
 
 /// A checked run configuration.
 #[derive(Debug, Clone, PartialEq)]
@@ -404,13 +412,17 @@ impl RunConfig {
         };
         let output = match root.sub("output")? {
             Some(s) => {
-                s.allow_only(&["folder"])?;
+                s.allow_only(&["folder", "orbits_on_sky_plot"])?;
                 OutputSettings {
                     folder: base.join(s.string("folder")?.unwrap_or("dyad-run")),
+                    orbits_on_sky_plot: s
+                        .count("orbits_on_sky_plot", 0)?
+                        .map_or(DEFAULT_SKY_ORBITS, |v| v as usize),
                 }
             }
             None => OutputSettings {
                 folder: base.join("dyad-run"),
+                orbits_on_sky_plot: DEFAULT_SKY_ORBITS,
             },
         };
         Ok(RunConfig {

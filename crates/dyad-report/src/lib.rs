@@ -2,7 +2,7 @@
 //!
 //! What it is for: turning posterior draws (and a few plain inputs the
 //! binary prepares) into the files of a run folder — text, Markdown and JSON
-//! summaries, a posterior samples CSV, and PNG + SVG plots (corner plot, sky
+//! summaries, a posterior samples CSV, and PNG + SVG plots (pair plot, sky
 //! plot of the relative orbit, folded velocity curves with residuals, mass
 //! distributions, period-window comparison, rank histograms for
 //! simulation-based calibration).
@@ -42,19 +42,25 @@ mod input;
 pub mod plots;
 pub mod stats;
 pub(crate) mod summary;
+pub mod tables;
 
 pub use atomic::{prepare_run_folder, write_atomically};
 pub use error::ReportError;
 pub use input::{ParameterInfo, ParameterKind, PosteriorDraws, RunMetadata};
 pub use plots::{
-    binomial_quantile, plot_corner, plot_mass_distributions, plot_period_windows,
-    plot_rank_histograms, plot_sky, plot_velocity_curves, register_bundled_font, DistributionPanel,
-    MassInterval, PlotFiles, RankHistogramInput, SkyMeasurement, SkyPlotInput, SkyPrediction, Star,
-    VelocityPlotInput, VelocityPoint, WindowSummary, RANK_BAND_PROBABILITY,
+    binomial_quantile, plot_mass_distributions, plot_pairs, plot_period_windows,
+    plot_rank_histograms, plot_separation_and_angle, plot_sky, plot_velocity_curves,
+    register_bundled_font, Band, DistributionPanel, LineOfNodes, MassInterval, PlotFiles,
+    PolarPoint, RankHistogramInput, SeparationPlotInput, SkyMeasurement, SkyPlotInput,
+    SkyPrediction, Star, VelocityPlotInput, VelocityPoint, WindowSummary, RANK_BAND_PROBABILITY,
 };
 pub use plots::{plot_next_epoch_advice, AdviceCurve, AdvicePlotInput};
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{
     json_summary, markdown_summary, text_summary, write_json_summary, write_markdown_summary,
     write_samples_csv, write_text_summary,
+};
+pub use tables::{
+    latex_elements_table, write_astrometry_residuals_csv, write_latex_elements_table,
+    AstrometryResidualRow, ElementRow, MeasuredForm,
 };

@@ -3,7 +3,7 @@
 
 use crate::atomic::write_atomically;
 use crate::error::ReportError;
-use crate::input::{PosteriorDraws, RunMetadata};
+use crate::input::{ParameterKind, PosteriorDraws, RunMetadata};
 use crate::stats::{ParameterSummary, PosteriorSummary};
 use std::fmt::Write as _;
 use std::path::Path;
@@ -17,6 +17,32 @@ pub(crate) fn decimals_for(p: &ParameterSummary) -> Option<usize> {
     }
     let d = 1 - err.log10().floor() as i64;
     Some(d.clamp(0, 10) as usize)
+}
+
+/// Whether a parameter did not vary across the draws (a fixed prior, or a
+/// quantity computed from fixed ones only): its interval is shown as
+/// "fixed", not as "-0 +0".
+pub(crate) fn is_fixed(p: &ParameterSummary) -> bool {
+    let width = p.q95[1] - p.q95[0];
+    p.n_finite > 0 && width.abs() <= 1e-12 * p.median.abs().max(1e-300)
+}
+
+/// `v` as reported: angles wrapped into [0, period) (the statistics keep
+/// a contiguous window that may cross 0; see [`crate::stats`]), other
+/// values unchanged.
+pub(crate) fn reported(p: &ParameterSummary, v: f64) -> f64 {
+    match p.info.kind {
+        ParameterKind::Angle { period_deg } => {
+            let w = v.rem_euclid(period_deg);
+            // rem_euclid can round up to the period itself.
+            if w >= period_deg {
+                0.0
+            } else {
+                w
+            }
+        }
+        ParameterKind::Linear => v,
+    }
 }
 
 /// Formats `v` for a table with the decimals chosen for its parameter.
@@ -54,18 +80,31 @@ struct Row {
 
 fn row_of(p: &ParameterSummary) -> Row {
     let d = decimals_for(p);
+    let w = |v: f64| fmt_value(reported(p, v), d);
+    let unit = if p.info.unit.is_empty() {
+        "-".to_string()
+    } else {
+        p.info.unit.clone()
+    };
+    if is_fixed(p) {
+        return Row {
+            name: p.info.name.clone(),
+            unit,
+            median: w(p.median),
+            minus: "fixed".to_string(),
+            plus: String::new(),
+            interval95: "fixed".to_string(),
+            map: w(p.map),
+        };
+    }
     Row {
         name: p.info.name.clone(),
-        unit: if p.info.unit.is_empty() {
-            "-".to_string()
-        } else {
-            p.info.unit.clone()
-        },
-        median: fmt_value(p.median, d),
+        unit,
+        median: w(p.median),
         minus: format!("-{}", fmt_value(p.minus68(), d)),
         plus: format!("+{}", fmt_value(p.plus68(), d)),
-        interval95: format!("[{}, {}]", fmt_value(p.q95[0], d), fmt_value(p.q95[1], d)),
-        map: fmt_value(p.map, d),
+        interval95: format!("[{}, {}]", w(p.q95[0]), w(p.q95[1])),
+        map: w(p.map),
     }
 }
 
@@ -118,7 +157,10 @@ pub fn text_summary(meta: &RunMetadata, summary: &PosteriorSummary) -> String {
     ));
     out.push_str("Intervals are equal-tailed (68 %: 16th-84th, 95 %: 2.5th-97.5th percentile);\n");
     out.push_str(&format!("quantiles: {}.\n", summary.quantile_rule));
-    out.push_str("Angles are summarised on the circle (window centred on the circular mean).\n\n");
+    out.push_str(
+        "Angles are summarised on the circle (window centred on the circular mean) and reported\n\
+         in [0, period): an interval written [350, 10] runs through 0.\n\n",
+    );
 
     let rows: Vec<Row> = summary.parameters.iter().map(row_of).collect();
     let mut widths: [usize; 7] = HEADERS.map(|h| h.chars().count());
@@ -175,7 +217,8 @@ pub fn markdown_summary(meta: &RunMetadata, summary: &PosteriorSummary) -> Strin
     out.push_str(&format!(
         "Posterior from {} draws; MAP is draw {} (log-posterior {:.4}). \
          Intervals are equal-tailed (68 %: 16th–84th, 95 %: 2.5th–97.5th percentile; {}). \
-         Angles are summarised on the circle.\n\n",
+         Angles are summarised on the circle and reported in [0, period): an interval \
+         written [350, 10] runs through 0.\n\n",
         summary.n_draws, summary.map_draw, summary.map_log_posterior, summary.quantile_rule
     ));
     out.push_str("| Parameter | Unit | Median | −68% | +68% | 95% interval | MAP |\n");

@@ -81,7 +81,7 @@ fn png_size(path: &Path) -> (u32, u32) {
 }
 
 /// Correlated draws of (m1, m2, omega) with omega straddling 0/360.
-fn corner_draws(n: usize) -> PosteriorDraws {
+fn pair_draws(n: usize) -> PosteriorDraws {
     let mut rng = SplitMix(7);
     let mut values = Vec::with_capacity(4 * n);
     let mut lp = Vec::with_capacity(n);
@@ -107,11 +107,11 @@ fn corner_draws(n: usize) -> PosteriorDraws {
 }
 
 #[test]
-fn corner_plot_writes_png_and_svg() {
+fn pair_plot_writes_png_and_svg() {
     let dir = preview_dir();
-    let d = corner_draws(6000);
-    let files = plot_corner(
-        &dir.join("corner"),
+    let d = pair_draws(6000);
+    let files = plot_pairs(
+        &dir.join("pairs"),
         "Posterior of the invented system Tarn-7",
         &d,
         &["m1", "m2", "omega"],
@@ -120,7 +120,7 @@ fn corner_plot_writes_png_and_svg() {
     let (w, h) = png_size(&files.png);
     assert!(w > 600 && h > 600);
     check_files(&files, w, h);
-    assert!(plot_corner(&dir.join("bad"), "x", &d, &["nope"]).is_err());
+    assert!(plot_pairs(&dir.join("bad"), "x", &d, &["nope"]).is_err());
 }
 
 /// Relative orbit by the Thiele-Innes formulas of DESIGN.md, Kepler's
@@ -173,6 +173,7 @@ fn sky_plot_writes_png_and_svg() {
                 ddec: p.1 + sy * rng.normal(),
                 cov: [[sx * sx, rho * sx * sy], [rho * sx * sy, sy * sy]],
                 label: format!("epoch {k}"),
+                model: Some(p),
             }
         })
         .collect();
@@ -194,8 +195,14 @@ fn sky_plot_writes_png_and_svg() {
         title: "Relative orbit of Tarn-7 B around A".into(),
         measurements,
         tracks,
-        best_track: Some(best),
+        best_track: Some(best.clone()),
         predictions,
+        nodes: Some(LineOfNodes {
+            ascending: best[40],
+            descending: best[190],
+            ascending_known: true,
+        }),
+        periastron: Some(best[0]),
     };
     let files = plot_sky(&dir.join("sky"), &input).unwrap();
     check_files(&files, 1000, 1060);
@@ -424,6 +431,7 @@ fn sky_plot_of_a_short_arc_without_best_orbit() {
             ddec: 220.0 - 5.0 * k as f64,
             cov: [[4.0, -1.0], [-1.0, 2.0]],
             label: String::new(),
+            model: None,
         })
         .collect();
     let input = SkyPlotInput {
@@ -432,6 +440,7 @@ fn sky_plot_of_a_short_arc_without_best_orbit() {
         tracks,
         best_track: None,
         predictions: vec![],
+        ..SkyPlotInput::default()
     };
     let files = plot_sky(&dir.join("sky_short_arc"), &input).unwrap();
     check_files(&files, 1000, 1060);
@@ -478,6 +487,7 @@ fn sky_plot_puts_east_left_and_north_up() {
             ddec,
             cov: [[25.0, 0.0], [0.0, 25.0]],
             label: String::new(),
+            model: None,
         }],
         ..SkyPlotInput::default()
     };
@@ -490,7 +500,7 @@ fn sky_plot_puts_east_left_and_north_up() {
 }
 
 #[test]
-fn corner_plot_with_six_awkward_parameters() {
+fn pair_plot_with_six_awkward_parameters() {
     // Large offsets (a JD), tiny numbers, a node known modulo 180 deg.
     let dir = preview_dir();
     let mut rng = SplitMix(21);
@@ -523,7 +533,59 @@ fn corner_plot_with_six_awkward_parameters() {
     )
     .unwrap();
     let names = ["t_peri", "node", "tiny", "period", "e", "gamma"];
-    let files = plot_corner(&dir.join("corner6"), "Six parameters", &d, &names).unwrap();
+    let files = plot_pairs(&dir.join("pairs6"), "Six parameters", &d, &names).unwrap();
     let (w, h) = png_size(&files.png);
     check_files(&files, w, h);
+}
+
+#[test]
+fn separation_and_angle_plot_draws_bands_and_rejects_mismatched_lengths() {
+    // An invented orbit whose position angle passes 360 once in the window.
+    let dir = preview_dir();
+    let n = 200;
+    let times: Vec<f64> = (0..n)
+        .map(|k| 2000.0 + 20.0 * k as f64 / (n - 1) as f64)
+        .collect();
+    let sep: Vec<f64> = times
+        .iter()
+        .map(|t| 300.0 + 80.0 * (0.3 * t).sin())
+        .collect();
+    let pa: Vec<f64> = times.iter().map(|t| 250.0 + 12.0 * (t - 2000.0)).collect();
+    let band = |v: &[f64], w: f64| Band {
+        median: v.to_vec(),
+        q68: v.iter().map(|x| [x - w, x + w]).collect(),
+        q95: v.iter().map(|x| [x - 2.0 * w, x + 2.0 * w]).collect(),
+    };
+    let points = (0..12)
+        .map(|k| {
+            let i = 8 + 15 * k;
+            PolarPoint {
+                t_year: times[i],
+                sep_mas: sep[i] + 3.0,
+                sep_err_mas: 4.0,
+                pa_deg: pa[i] - 0.5,
+                pa_err_deg: 0.7,
+                sep_oc_mas: 3.0,
+                pa_oc_deg: -0.5,
+                source: if k % 2 == 0 { "speckle" } else { "imaging" }.into(),
+            }
+        })
+        .collect();
+    let input = SeparationPlotInput {
+        title: "Separation and position angle of Tarn-7".into(),
+        time_label: "Epoch [Julian year]".into(),
+        times_year: times.clone(),
+        separation: band(&sep, 5.0),
+        position_angle: band(&pa, 2.0),
+        best_separation: sep.clone(),
+        best_position_angle: pa.clone(),
+        points,
+    };
+    let files = plot_separation_and_angle(&dir.join("separation"), &input).unwrap();
+    check_files(&files, 1200, 1300);
+    let short = SeparationPlotInput {
+        best_separation: sep[..10].to_vec(),
+        ..input
+    };
+    assert!(plot_separation_and_angle(&dir.join("bad_separation"), &short).is_err());
 }

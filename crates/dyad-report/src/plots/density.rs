@@ -1,4 +1,4 @@
-//! 2-D density estimate for the corner plot: a histogram smoothed with a
+//! 2-D density estimate for the pair plot: a histogram smoothed with a
 //! Gaussian kernel, the density levels enclosing given fractions of the
 //! mass, and contour lines by marching squares (Lorensen & Cline 1987,
 //! "Marching cubes", SIGGRAPH 21, 163, in its 2-D form).

@@ -7,11 +7,12 @@
 
 mod advice;
 mod category;
-mod corner;
 pub mod density;
 mod masses;
+mod pairs;
 mod periods;
 mod ranks;
+mod separation;
 mod sky;
 mod velocity;
 
@@ -21,10 +22,11 @@ pub use periods::{plot_period_windows, MassInterval, WindowSummary};
 pub use ranks::{
     binomial_quantile, plot_rank_histograms, RankHistogramInput, RANK_BAND_PROBABILITY,
 };
-pub use sky::{plot_sky, SkyMeasurement, SkyPlotInput, SkyPrediction};
+pub use separation::{plot_separation_and_angle, Band, PolarPoint, SeparationPlotInput};
+pub use sky::{plot_sky, LineOfNodes, SkyMeasurement, SkyPlotInput, SkyPrediction};
 pub use velocity::{plot_velocity_curves, Star, VelocityPlotInput, VelocityPoint};
 
-pub use corner::plot_corner;
+pub use pairs::plot_pairs;
 
 use crate::atomic::{commit_temp, temp_path_for, write_atomically};
 use crate::error::ReportError;
@@ -216,8 +218,8 @@ pub(crate) enum Marker {
     Square,
     Diamond,
     Cross,
-    /// Five-pointed star with a dark outline (the primary star).
-    Star,
+    /// An open circle with cross-hairs through it (the primary star).
+    Primary,
 }
 
 pub(crate) const MARKERS: [Marker; 5] = [
@@ -254,23 +256,22 @@ where
                 style,
             )),
         ),
-        Marker::Star => {
-            let pts: Vec<(i32, i32)> = (0..10)
-                .map(|k| {
-                    let r = if k % 2 == 0 {
-                        s as f64
-                    } else {
-                        0.42 * s as f64
-                    };
-                    let a = std::f64::consts::PI * (k as f64 / 5.0 - 0.5);
-                    ((r * a.cos()).round() as i32, (r * a.sin()).round() as i32)
-                })
-                .collect();
-            let mut outline = pts.clone();
-            outline.push(pts[0]);
-            area.draw(&(EmptyElement::at(at) + Polygon::new(pts, style)))
+        Marker::Primary => {
+            // Cross-hairs reach past the ring, with a gap at the centre so
+            // a point on the primary stays visible.
+            let (inner, outer) = (s / 3, s + s * 3 / 4);
+            let ink = style.color.stroke_width(2);
+            for (dx, dy) in [(1, 0), (-1, 0), (0, 1), (0, -1)] {
+                area.draw(
+                    &(EmptyElement::at(at.clone())
+                        + PathElement::new(
+                            vec![(dx * inner, dy * inner), (dx * outer, dy * outer)],
+                            ink,
+                        )),
+                )
                 .ctx(plot)?;
-            area.draw(&(e + PathElement::new(outline, INK.stroke_width(1))))
+            }
+            area.draw(&(e + Circle::new((0, 0), s, ink)))
         }
         Marker::Cross => area.draw(
             &(e + PathElement::new(vec![(-s, -s), (s, s)], style.stroke_width(2))
@@ -408,7 +409,7 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
                 area,
                 (gx0 + glyph_w / 2, cy),
                 m,
-                if matches!(m, Marker::Star) {
+                if matches!(m, Marker::Primary) {
                     (size * 0.55).round() as i32
                 } else {
                     (size * 0.3).round() as i32
@@ -435,6 +436,24 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
 pub(crate) fn tint(c: RGBColor, a: f64) -> RGBColor {
     let m = |v: u8| (255.0 - a * (255.0 - v as f64)).round().clamp(0.0, 255.0) as u8;
     RGBColor(m(c.0), m(c.1), m(c.2))
+}
+
+/// Dashed line from `a` to `b` in data coordinates, as `n_dashes` short
+/// segments with equal gaps between them.
+pub(crate) fn dashed_segment(
+    a: (f64, f64),
+    b: (f64, f64),
+    n_dashes: usize,
+) -> Vec<Vec<(f64, f64)>> {
+    let n = n_dashes.max(1);
+    let at = |t: f64| (a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1));
+    (0..n)
+        .map(|k| {
+            let t0 = (2 * k) as f64 / (2 * n - 1) as f64;
+            let t1 = (2 * k + 1) as f64 / (2 * n - 1) as f64;
+            vec![at(t0), at(t1)]
+        })
+        .collect()
 }
 
 /// Dashed vertical line from `(x, y0)` to `(x, y1)` in data coordinates,

@@ -1,9 +1,9 @@
 //! Sky plot of the relative orbit: North up, East left.
 
 use super::{
-    corner_origin, draw_legend, draw_marker, font, least_crowded_corner, legend_size, render,
-    tick_formatter, Corner, Figure, LegendGlyph, Marker, PlotFiles, PlotResultExt, BLUE, GREY, INK,
-    ORANGE, PURPLE, SKY_BLUE, VERMILLION,
+    corner_origin, dashed_segment, draw_legend, draw_marker, font, least_crowded_corner,
+    legend_size, render, tick_formatter, Corner, Figure, LegendGlyph, Marker, PlotFiles,
+    PlotResultExt, BLUE, GREEN, GREY, INK, ORANGE, PURPLE, SKY_BLUE, VERMILLION,
 };
 use crate::error::ReportError;
 use plotters::coord::Shift;
@@ -24,6 +24,23 @@ pub struct SkyMeasurement {
     pub cov: [[f64; 2]; 2],
     /// Free text (epoch, source); not drawn, kept for callers' records.
     pub label: String,
+    /// The model position (ΔRA*, ΔDec) \[mas\] at the same epoch, drawn
+    /// as an O − C connector from the measured point.
+    pub model: Option<(f64, f64)>,
+}
+
+/// The line of nodes of an orbit on the sky: the two points where the
+/// orbit crosses the plane of the sky through the primary, in mas.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LineOfNodes {
+    /// Ascending node (ΔRA*, ΔDec) \[mas\]: the secondary moves away from
+    /// the observer there.
+    pub ascending: (f64, f64),
+    /// Descending node (ΔRA*, ΔDec) \[mas\].
+    pub descending: (f64, f64),
+    /// Whether the data tell the two apart (astrometry alone fixes the node
+    /// only modulo 180 deg, and then neither end is labelled).
+    pub ascending_known: bool,
 }
 
 /// A predicted position at a future epoch.
@@ -47,12 +64,16 @@ pub struct SkyPlotInput {
     pub title: String,
     /// Measured positions.
     pub measurements: Vec<SkyMeasurement>,
-    /// Orbit tracks of posterior draws (about 100 is plenty).
+    /// Orbit tracks of posterior draws (a few tens show the spread).
     pub tracks: Vec<Vec<(f64, f64)>>,
     /// The best (MAP) orbit's track, drawn bold, with the direction of motion.
     pub best_track: Option<Vec<(f64, f64)>>,
     /// Predicted positions.
     pub predictions: Vec<SkyPrediction>,
+    /// Line of nodes of the best orbit.
+    pub nodes: Option<LineOfNodes>,
+    /// Periastron of the best orbit (ΔRA*, ΔDec) \[mas\].
+    pub periastron: Option<(f64, f64)>,
 }
 
 struct SkyFigure<'a> {
@@ -223,6 +244,83 @@ impl Figure for SkyFigure<'_> {
                     .ctx(NAME)?;
             }
         }
+        // Line of nodes through the primary, dashed, and the periastron.
+        if let Some(nodes) = &inp.nodes {
+            let (a, d) = (nodes.ascending, nodes.descending);
+            let dashes = dashed_segment((-a.0, a.1), (-d.0, d.1), 24);
+            chart
+                .draw_series(
+                    dashes
+                        .into_iter()
+                        .map(|s| PathElement::new(s, GREEN.stroke_width(2))),
+                )
+                .ctx(NAME)?;
+            for (p, text) in [(a, "ascending node"), (d, "")] {
+                draw_marker(
+                    chart.plotting_area(),
+                    (-p.0, p.1),
+                    Marker::Square,
+                    4,
+                    GREEN.filled(),
+                    NAME,
+                )?;
+                if nodes.ascending_known && !text.is_empty() {
+                    chart
+                        .plotting_area()
+                        .draw(
+                            &(EmptyElement::at((-p.0, p.1))
+                                + Text::new(
+                                    text,
+                                    (8, 8),
+                                    font(16.0)
+                                        .color(&GREEN)
+                                        .pos(Pos::new(HPos::Left, VPos::Top)),
+                                )),
+                        )
+                        .ctx(NAME)?;
+                }
+            }
+        }
+        if let Some(p) = inp.periastron {
+            chart
+                .draw_series(std::iter::once(PathElement::new(
+                    vec![(0.0, 0.0), (-p.0, p.1)],
+                    ORANGE.stroke_width(1),
+                )))
+                .ctx(NAME)?;
+            draw_marker(
+                chart.plotting_area(),
+                (-p.0, p.1),
+                Marker::Triangle,
+                6,
+                ORANGE.filled(),
+                NAME,
+            )?;
+            chart
+                .plotting_area()
+                .draw(
+                    &(EmptyElement::at((-p.0, p.1))
+                        + Text::new(
+                            "periastron",
+                            (9, -9),
+                            font(16.0)
+                                .color(&INK)
+                                .pos(Pos::new(HPos::Left, VPos::Bottom)),
+                        )),
+                )
+                .ctx(NAME)?;
+        }
+        // O − C connectors: measured point to the model at the same epoch.
+        for m in &inp.measurements {
+            if let Some((a, b)) = m.model {
+                chart
+                    .draw_series(std::iter::once(PathElement::new(
+                        vec![(-m.dra, m.ddec), (-a, b)],
+                        INK.stroke_width(2),
+                    )))
+                    .ctx(NAME)?;
+            }
+        }
         for m in &inp.measurements {
             let e: Vec<(f64, f64)> = ellipse_points(m.dra, m.ddec, m.cov, 48)
                 .into_iter()
@@ -275,18 +373,18 @@ impl Figure for SkyFigure<'_> {
                 )
                 .ctx(NAME)?;
         }
-        // The primary: a five-pointed star at the origin.
+        // The primary: an open ring with cross-hairs at the origin.
         draw_marker(
             chart.plotting_area(),
             (0.0, 0.0),
-            Marker::Star,
-            13,
-            ORANGE.filled(),
+            Marker::Primary,
+            9,
+            INK.filled(),
             NAME,
         )?;
 
         let mut legend = vec![(
-            LegendGlyph::Marker(Marker::Star, ORANGE),
+            LegendGlyph::Marker(Marker::Primary, INK),
             "primary".to_string(),
         )];
         if !inp.measurements.is_empty() {
@@ -305,6 +403,21 @@ impl Figure for SkyFigure<'_> {
             legend.push((
                 LegendGlyph::Line(BLUE, 3, 1.0),
                 "best orbit, with direction of motion".into(),
+            ));
+        }
+        if inp.measurements.iter().any(|m| m.model.is_some()) {
+            legend.push((
+                LegendGlyph::Line(INK, 2, 1.0),
+                "O − C: measured to best-orbit position".into(),
+            ));
+        }
+        if inp.nodes.is_some() {
+            legend.push((LegendGlyph::Line(GREEN, 2, 1.0), "line of nodes".into()));
+        }
+        if inp.periastron.is_some() {
+            legend.push((
+                LegendGlyph::Marker(Marker::Triangle, ORANGE),
+                "periastron".into(),
             ));
         }
         if !inp.predictions.is_empty() {
