@@ -22,8 +22,9 @@ use dyad_sampler::evidence::{estimate_evidence, window_probabilities, EvidenceEs
 
 use crate::density::Posterior;
 use crate::fit::{checkpoint_config, finish, open_run_folder, sample_fresh, starting_ensemble};
+use crate::modes::period_modes;
 use crate::plan::SamplingPlan;
-use crate::posterior::{period_modes, read_draws};
+use crate::posterior::read_draws;
 use crate::run_folder::{write_text, write_window, RunFiles};
 
 /// Options of `dyad periods`.
@@ -149,7 +150,7 @@ fn discover_windows(
     let draws = read_draws(&files, model, outcome.burn_in)?;
     let (p_lo, p_hi) = model.layout().priors().period_days.support();
     let mut windows: Vec<(f64, f64)> = Vec::new();
-    for m in period_modes(&draws.table) {
+    for m in period_modes(&draws) {
         let lo = (m.range_days[0] / 1.05).max(p_lo);
         let hi = (m.range_days[1] * 1.05).min(p_hi);
         match windows.last_mut() {

@@ -20,6 +20,7 @@ use dyad_sampler::read_record_file;
 
 use crate::check::prior_lines;
 use crate::fit::Outcome;
+use crate::modes::{split_modes, PeriodMode};
 use crate::run_folder::{write_text, RunFiles};
 
 /// Most posterior draws kept for the report (records are thinned evenly
@@ -31,6 +32,8 @@ const SKY_TRACKS: usize = 100;
 
 /// Posterior draws: sampled coordinates and physical quantities.
 pub struct Draws {
+    /// Walkers per record: draw `d` came from walker `d % walkers`.
+    pub walkers: usize,
     /// Sampled coordinates, draw-major.
     pub sampled: Vec<f64>,
     /// Sampled plus derived quantities, for the report crate.
@@ -131,106 +134,11 @@ pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws
         }
     }
     let table = PosteriorDraws::new(params, values, log_posterior)?;
-    Ok(Draws { sampled, table })
-}
-
-/// One separated period mode of the posterior.
-#[derive(Debug, Clone, serde::Serialize)]
-pub struct PeriodMode {
-    /// Posterior weight (fraction of draws).
-    pub weight: f64,
-    /// Median period, days.
-    pub period_days: f64,
-    /// Range of the mode's draws, days.
-    pub range_days: [f64; 2],
-    /// Median total mass in the mode, when the model has one.
-    pub total_mass_msun: Option<f64>,
-}
-
-/// Splits the period marginal into modes separated by empty stretches of a
-/// histogram in ln P, so that a multimodal posterior is reported as such
-/// rather than averaged.
-pub fn period_modes(draws: &PosteriorDraws) -> Vec<PeriodMode> {
-    let Some(ip) = draws.index_of("period_days") else {
-        return Vec::new();
-    };
-    let im = draws.index_of("total_mass_msun");
-    let n = draws.n_draws();
-    let mut pairs: Vec<(f64, f64)> = (0..n)
-        .map(|d| {
-            let row = &draws.values[d * draws.n_params()..(d + 1) * draws.n_params()];
-            (row[ip].ln(), im.map_or(f64::NAN, |i| row[i]))
-        })
-        .filter(|(l, _)| l.is_finite())
-        .collect();
-    if pairs.is_empty() {
-        return Vec::new();
-    }
-    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let (lo, hi) = (pairs[0].0, pairs[pairs.len() - 1].0);
-    const BINS: usize = 200;
-    let width = ((hi - lo) / BINS as f64).max(1e-12);
-    let mut counts = [0usize; BINS];
-    for (l, _) in &pairs {
-        counts[(((l - lo) / width) as usize).min(BINS - 1)] += 1;
-    }
-    // A bin holding under 0.05 per cent of the draws counts as empty; two
-    // modes are separate when at least two empty bins lie between them.
-    let empty = |c: usize| (c as f64) < 5e-4 * pairs.len() as f64;
-    let mut groups: Vec<(usize, usize)> = Vec::new();
-    let mut b = 0;
-    while b < BINS {
-        if empty(counts[b]) {
-            b += 1;
-            continue;
-        }
-        let start = b;
-        let mut end = b;
-        let mut gap = 0;
-        while b < BINS {
-            if empty(counts[b]) {
-                gap += 1;
-                if gap >= 2 {
-                    break;
-                }
-            } else {
-                gap = 0;
-                end = b;
-            }
-            b += 1;
-        }
-        groups.push((start, end));
-    }
-    let total = pairs.len() as f64;
-    groups
-        .into_iter()
-        .filter_map(|(s, e)| {
-            let (a, z) = (lo + s as f64 * width, lo + (e + 1) as f64 * width);
-            let members: Vec<&(f64, f64)> =
-                pairs.iter().filter(|(l, _)| *l >= a && *l <= z).collect();
-            let weight = members.len() as f64 / total;
-            if weight < 0.005 {
-                return None;
-            }
-            let median = |v: &mut Vec<f64>| {
-                v.sort_by(f64::total_cmp);
-                v[v.len() / 2]
-            };
-            let mut periods: Vec<f64> = members.iter().map(|(l, _)| l.exp()).collect();
-            let range_days = [periods[0], periods[periods.len() - 1]];
-            let mut masses: Vec<f64> = members
-                .iter()
-                .map(|(_, m)| *m)
-                .filter(|m| m.is_finite())
-                .collect();
-            Some(PeriodMode {
-                weight,
-                period_days: median(&mut periods),
-                range_days,
-                total_mass_msun: (!masses.is_empty()).then(|| median(&mut masses)),
-            })
-        })
-        .collect()
+    Ok(Draws {
+        walkers: nw,
+        sampled,
+        table,
+    })
 }
 
 /// The statement of what the posterior depends on, for every report.
@@ -299,27 +207,36 @@ fn metadata(
         ));
     }
     if modes.len() > 1 {
-        for (k, m) in modes.iter().enumerate() {
+        for m in modes {
             let mass = m
                 .total_mass_msun
                 .map_or_else(String::new, |v| format!(", median M1+M2 {v:.3} M_sun"));
             entries.push((
-                format!("period mode {}", k + 1),
+                format!("period mode {}", m.number),
                 format!(
-                    "weight {:.3}: P = {:.4} yr (range {:.4} to {:.4} yr){mass}",
+                    "weight {:.3} +- {:.3}: P = {:.4} yr (range {:.4} to {:.4} yr){mass}",
                     m.weight,
+                    m.weight_error,
                     m.period_days / 365.25,
                     m.range_days[0] / 365.25,
                     m.range_days[1] / 365.25
                 ),
             ));
         }
-        entries.push((
-            "caution".to_owned(),
-            "the posterior has several separate period modes: the intervals below span all of \
-             them; see the modes above and `dyad periods` for per-window results"
-                .to_owned(),
-        ));
+        // First thing a reader sees: the table's intervals are not those
+        // of one orbit.
+        entries.insert(
+            0,
+            (
+                "caution".to_owned(),
+                format!(
+                    "the posterior has {} separate period modes: the intervals in the table \
+                     below span all of them; each mode's own medians and intervals follow the \
+                     table (samples.csv column `mode`, plots in plots/mode-N/)",
+                    modes.len()
+                ),
+            ),
+        );
     }
     for w in &outcome.warnings {
         entries.push(("warning".to_owned(), w.clone()));
@@ -390,24 +307,74 @@ pub fn write_report(
 ) -> Result<()> {
     let draws = read_draws(files, model, outcome.burn_in)?;
     let summary = dyad_report::summarise(&draws.table)?;
-    let modes = period_modes(&draws.table);
-    let meta = metadata(config, model, outcome, &modes);
-    let diagnostics = diagnostics_document(model, outcome, &modes);
+    let split = split_modes(&draws.table, draws.walkers);
+    let modes = &split.modes;
+    let meta = metadata(config, model, outcome, modes);
+    let diagnostics = diagnostics_document(model, outcome, modes);
     let folder = &files.folder;
     let physical = physical_only(&summary);
-    dyad_report::write_text_summary(&folder.join("summary.txt"), &meta, &physical)?;
-    dyad_report::write_markdown_summary(&folder.join("summary.md"), &meta, &physical)?;
-    dyad_report::write_json_summary(&folder.join("summary.json"), &meta, &summary, &diagnostics)?;
-    dyad_report::write_samples_csv(&folder.join("samples.csv"), &draws.table)?;
+    let plots = files.plots();
+    fs::create_dir_all(&plots).with_context(|| format!("creating {}", plots.display()))?;
+    write_plots(&plots, model, &draws, &summary)?;
+    let mut text = dyad_report::text_summary(&meta, &physical);
+    let mut markdown = dyad_report::markdown_summary(&meta, &physical);
+    let mut json = dyad_report::json_summary(&meta, &summary, &diagnostics)?;
+    if split.is_multimodal() {
+        let mut blocks = Vec::new();
+        for m in modes {
+            let of_mode = draws.of_mode(&split.labels, m.number)?;
+            let mode_summary = dyad_report::summarise(&of_mode.table)?;
+            let heading = format!(
+                "Period mode {} of {}: weight {:.3} +- {:.3}, {} draws, P = {:.4} yr",
+                m.number,
+                modes.len(),
+                m.weight,
+                m.weight_error,
+                mode_summary.n_draws,
+                m.period_days / 365.25
+            );
+            let mode_physical = physical_only(&mode_summary);
+            text.push_str(&format!(
+                "\n{heading}\n{}\n{}",
+                "-".repeat(heading.chars().count()),
+                dyad_report::text_parameter_table(&mode_physical)
+            ));
+            markdown.push_str(&format!(
+                "\n## {heading}\n\n{}",
+                dyad_report::markdown_parameter_table(&mode_physical)
+            ));
+            blocks.push(json!({
+                "mode": m.number,
+                "weight": m.weight,
+                "weight_error": m.weight_error,
+                "n_draws": mode_summary.n_draws,
+                "period_days": m.period_days,
+                "range_days": m.range_days,
+                "parameters": mode_summary.parameters,
+            }));
+            let mode_plots = plots.join(format!("mode-{}", m.number));
+            fs::create_dir_all(&mode_plots)
+                .with_context(|| format!("creating {}", mode_plots.display()))?;
+            write_plots(&mode_plots, model, &of_mode, &mode_summary)?;
+        }
+        json["modes"] = serde_json::Value::Array(blocks);
+    }
+    let mut json_text = serde_json::to_string_pretty(&json)?;
+    json_text.push('\n');
+    write_text(&folder.join("summary.txt"), &text)?;
+    write_text(&folder.join("summary.md"), &markdown)?;
+    write_text(&folder.join("summary.json"), &json_text)?;
+    dyad_report::write_samples_csv(
+        &folder.join("samples.csv"),
+        &draws.table,
+        Some(&split.labels),
+    )?;
     write_text(
         &folder.join("diagnostics.json"),
         &serde_json::to_string_pretty(&diagnostics)?,
     )?;
-    let plots = files.plots();
-    fs::create_dir_all(&plots).with_context(|| format!("creating {}", plots.display()))?;
-    write_plots(files, model, &draws, &summary)?;
     if !quiet {
-        println!("{}", dyad_report::text_summary(&meta, &physical));
+        println!("{text}");
         println!("results in {}", folder.display());
     }
     Ok(())
@@ -417,13 +384,14 @@ fn map_point<'a>(draws: &'a Draws, summary: &PosteriorSummary, dim: usize) -> &'
     &draws.sampled[summary.map_draw * dim..(summary.map_draw + 1) * dim]
 }
 
+/// Draws the plots of `draws` (the whole posterior or one mode's) into the
+/// folder `plots`.
 fn write_plots(
-    files: &RunFiles,
+    plots: &std::path::Path,
     model: &Model,
     draws: &Draws,
     summary: &PosteriorSummary,
 ) -> Result<()> {
-    let plots = files.plots();
     let table = &draws.table;
     let dim = model.dim();
     let map_x = map_point(draws, summary, dim);

@@ -54,6 +54,6 @@ pub use plots::{
 };
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{
-    json_summary, markdown_summary, text_summary, write_json_summary, write_markdown_summary,
-    write_samples_csv, write_text_summary,
+    json_summary, markdown_parameter_table, markdown_summary, text_parameter_table, text_summary,
+    write_json_summary, write_markdown_summary, write_samples_csv, write_text_summary,
 };
