@@ -315,7 +315,7 @@ pub fn write_report(
     let physical = physical_only(&summary);
     let plots = files.plots();
     fs::create_dir_all(&plots).with_context(|| format!("creating {}", plots.display()))?;
-    write_plots(&plots, model, &draws, &summary)?;
+    write_plots(&plots, model, &draws, &summary, "")?;
     let mut text = dyad_report::text_summary(&meta, &physical);
     let mut markdown = dyad_report::markdown_summary(&meta, &physical);
     let mut json = dyad_report::json_summary(&meta, &summary, &diagnostics)?;
@@ -355,7 +355,13 @@ pub fn write_report(
             let mode_plots = plots.join(format!("mode-{}", m.number));
             fs::create_dir_all(&mode_plots)
                 .with_context(|| format!("creating {}", mode_plots.display()))?;
-            write_plots(&mode_plots, model, &of_mode, &mode_summary)?;
+            write_plots(
+                &mode_plots,
+                model,
+                &of_mode,
+                &mode_summary,
+                &format!(" (period mode {}, weight {:.2})", m.number, m.weight),
+            )?;
         }
         json["modes"] = serde_json::Value::Array(blocks);
     }
@@ -385,12 +391,13 @@ fn map_point<'a>(draws: &'a Draws, summary: &PosteriorSummary, dim: usize) -> &'
 }
 
 /// Draws the plots of `draws` (the whole posterior or one mode's) into the
-/// folder `plots`.
+/// folder `plots`; `note` is appended to every title.
 fn write_plots(
     plots: &std::path::Path,
     model: &Model,
     draws: &Draws,
     summary: &PosteriorSummary,
+    note: &str,
 ) -> Result<()> {
     let table = &draws.table;
     let dim = model.dim();
@@ -431,7 +438,7 @@ fn write_plots(
     };
     dyad_report::plot_corner(
         &plots.join("corner"),
-        "Posterior of the main parameters",
+        &format!("Posterior of the main parameters{note}"),
         table,
         &corner,
     )?;
@@ -457,14 +464,18 @@ fn write_plots(
     })
     .collect();
     if !panels.is_empty() {
-        dyad_report::plot_mass_distributions(&plots.join("masses"), "Masses", &panels)?;
+        dyad_report::plot_mass_distributions(
+            &plots.join("masses"),
+            &format!("Masses{note}"),
+            &panels,
+        )?;
     }
 
     if model.mode() != FitMode::VelocitiesOnly {
-        dyad_report::plot_sky(&plots.join("sky"), &sky_input(model, draws, map_x))?;
+        dyad_report::plot_sky(&plots.join("sky"), &sky_input(model, draws, map_x, note))?;
     }
     if model.mode() != FitMode::AstrometryOnly {
-        if let Some(input) = velocity_input(model, map_x) {
+        if let Some(input) = velocity_input(model, map_x, note) {
             dyad_report::plot_velocity_curves(&plots.join("velocities"), &input)?;
         }
     }
@@ -541,7 +552,7 @@ pub fn orbit_track(model: &Model, x: &[f64], points: usize) -> Option<Vec<(f64, 
     )
 }
 
-fn sky_input(model: &Model, draws: &Draws, map_x: &[f64]) -> SkyPlotInput {
+fn sky_input(model: &Model, draws: &Draws, map_x: &[f64], note: &str) -> SkyPlotInput {
     let dim = model.dim();
     let n = draws.sampled.len() / dim;
     let step = (n / SKY_TRACKS).max(1);
@@ -551,7 +562,7 @@ fn sky_input(model: &Model, draws: &Draws, map_x: &[f64]) -> SkyPlotInput {
         .filter_map(|d| orbit_track(model, &draws.sampled[d * dim..(d + 1) * dim], 240))
         .collect();
     SkyPlotInput {
-        title: "Relative orbit on the sky".to_owned(),
+        title: format!("Relative orbit on the sky{note}"),
         measurements: model
             .dataset()
             .astrometry
@@ -564,7 +575,7 @@ fn sky_input(model: &Model, draws: &Draws, map_x: &[f64]) -> SkyPlotInput {
     }
 }
 
-fn velocity_input(model: &Model, map_x: &[f64]) -> Option<VelocityPlotInput> {
+fn velocity_input(model: &Model, map_x: &[f64], note: &str) -> Option<VelocityPlotInput> {
     let o = model.layout().orbital(map_x)?;
     let residuals = model.residuals(map_x)?;
     let layout = model.layout();
@@ -599,7 +610,7 @@ fn velocity_input(model: &Model, map_x: &[f64]) -> Option<VelocityPlotInput> {
             .collect()
     };
     Some(VelocityPlotInput {
-        title: "Radial velocities folded on the period (best-fit orbit)".to_owned(),
+        title: format!("Radial velocities folded on the period (best-fit orbit){note}"),
         period_days: o.period_days,
         t_peri_jd: o.t_peri_jd,
         points,
