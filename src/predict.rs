@@ -167,12 +167,15 @@ fn quantiles(values: &mut [f64], angle: bool) -> [f64; 7] {
     q
 }
 
+/// Mean (dRA*, dDec) and their covariance, mas and mas².
+type OffsetSpread = ((f64, f64), [[f64; 2]; 2]);
+
 /// Posterior-predictive quantiles of one mode at one epoch.
 struct ModePrediction {
     /// Quantiles per quantity (in the order of [`quantities`]).
     quantiles: Vec<[f64; 7]>,
     /// Mean and covariance of the offsets (for the sky plot's ellipse).
-    offsets: Option<((f64, f64), [[f64; 2]; 2])>,
+    offsets: Option<OffsetSpread>,
 }
 
 /// Predictions of one mode at every epoch.
