@@ -18,6 +18,7 @@ mod check;
 mod density;
 mod error_summary;
 mod fit;
+mod modes;
 mod paper_table;
 mod periods;
 mod plan;
@@ -102,14 +103,24 @@ enum Command {
         #[arg(long)]
         quiet: bool,
     },
-    /// Where the companion will be: posterior separation and position angle
-    /// at given epochs, from a finished run.
+    /// Where the companion will be: per period mode, the posterior
+    /// separation, position angle, offsets and velocities at given epochs or
+    /// over a range, written to a new numbered folder RUN/prediction-N.
     Predict {
         /// The run folder.
         run: PathBuf,
         /// Epochs, as Julian years (e.g. 2027.5) unless --scale says otherwise.
-        #[arg(required = true, num_args = 1..)]
+        #[arg(num_args = 0..)]
         epochs: Vec<f64>,
+        /// First epoch of a range (with --to and --step).
+        #[arg(long, allow_negative_numbers = true)]
+        from: Option<f64>,
+        /// Last epoch of a range.
+        #[arg(long, allow_negative_numbers = true)]
+        to: Option<f64>,
+        /// Step of a range, in the unit of the time scale (years or days).
+        #[arg(long, allow_negative_numbers = true)]
+        step: Option<f64>,
         /// Time scale of the epochs: jyear, byear, jd or mjd.
         #[arg(long, default_value = "jyear")]
         scale: String,
@@ -226,7 +237,23 @@ fn run(cli: Cli) -> Result<()> {
                 quiet,
             },
         ),
-        Command::Predict { run, epochs, scale } => predict::predict(&run, &epochs, &scale),
+        Command::Predict {
+            run,
+            epochs,
+            from,
+            to,
+            step,
+            scale,
+        } => predict::predict(
+            &run,
+            &predict::PredictOptions {
+                epochs,
+                from,
+                to,
+                step,
+                scale,
+            },
+        ),
         Command::Advise {
             run,
             from,

@@ -23,8 +23,9 @@ use dyad_sampler::evidence::{estimate_evidence, window_probabilities, EvidenceEs
 
 use crate::density::Posterior;
 use crate::fit::{checkpoint_config, finish, open_run_folder, sample_fresh, starting_ensemble};
+use crate::modes::period_modes;
 use crate::plan::SamplingPlan;
-use crate::posterior::{period_modes, read_draws};
+use crate::posterior::read_draws;
 use crate::run_folder::{write_text, write_window, RunFiles};
 use crate::terminal::{note, say};
 
@@ -146,7 +147,7 @@ fn discover_windows(
     )?;
     let outcome = crate::fit::Outcome::read(&files)?;
     let draws = read_draws(&files, model, outcome.burn_in)?;
-    let mut ranges: Vec<[f64; 2]> = period_modes(&draws.table)
+    let mut ranges: Vec<[f64; 2]> = period_modes(&draws)
         .iter()
         .map(|m| m.range_days)
         .collect();

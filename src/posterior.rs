@@ -20,6 +20,7 @@ use dyad_sampler::for_each_record;
 
 use crate::check::prior_lines;
 use crate::fit::Outcome;
+use crate::modes::{split_modes, PeriodMode};
 use crate::run_folder::{write_text, RunFiles};
 use crate::terminal::say;
 
@@ -29,6 +30,8 @@ pub const MAX_DRAWS: usize = 40_000;
 
 /// Posterior draws: sampled coordinates and physical quantities.
 pub struct Draws {
+    /// Walkers per record: draw `d` came from walker `d % walkers`.
+    pub walkers: usize,
     /// Sampled coordinates, draw-major.
     pub sampled: Vec<f64>,
     /// Sampled plus derived quantities, for the report crate.
@@ -136,106 +139,11 @@ pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws
     })
     .with_context(|| format!("reading the chain {}", chain.display()))?;
     let table = PosteriorDraws::new(params, values, log_posterior)?;
-    Ok(Draws { sampled, table })
-}
-
-/// One separated period mode of the posterior.
-#[derive(Debug, Clone, serde::Serialize)]
-pub struct PeriodMode {
-    /// Posterior weight (fraction of draws).
-    pub weight: f64,
-    /// Median period, days.
-    pub period_days: f64,
-    /// Range of the mode's draws, days.
-    pub range_days: [f64; 2],
-    /// Median total mass in the mode, when the model has one.
-    pub total_mass_msun: Option<f64>,
-}
-
-/// Splits the period marginal into modes separated by empty stretches of a
-/// histogram in ln P, so that a multimodal posterior is reported as such
-/// rather than averaged.
-pub fn period_modes(draws: &PosteriorDraws) -> Vec<PeriodMode> {
-    let Some(ip) = draws.index_of("period_days") else {
-        return Vec::new();
-    };
-    let im = draws.index_of("total_mass_msun");
-    let n = draws.n_draws();
-    let mut pairs: Vec<(f64, f64)> = (0..n)
-        .map(|d| {
-            let row = &draws.values[d * draws.n_params()..(d + 1) * draws.n_params()];
-            (row[ip].ln(), im.map_or(f64::NAN, |i| row[i]))
-        })
-        .filter(|(l, _)| l.is_finite())
-        .collect();
-    if pairs.is_empty() {
-        return Vec::new();
-    }
-    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
-    let (lo, hi) = (pairs[0].0, pairs[pairs.len() - 1].0);
-    const BINS: usize = 200;
-    let width = ((hi - lo) / BINS as f64).max(1e-12);
-    let mut counts = [0usize; BINS];
-    for (l, _) in &pairs {
-        counts[(((l - lo) / width) as usize).min(BINS - 1)] += 1;
-    }
-    // A bin holding under 0.05 per cent of the draws counts as empty; two
-    // modes are separate when at least two empty bins lie between them.
-    let empty = |c: usize| (c as f64) < 5e-4 * pairs.len() as f64;
-    let mut groups: Vec<(usize, usize)> = Vec::new();
-    let mut b = 0;
-    while b < BINS {
-        if empty(counts[b]) {
-            b += 1;
-            continue;
-        }
-        let start = b;
-        let mut end = b;
-        let mut gap = 0;
-        while b < BINS {
-            if empty(counts[b]) {
-                gap += 1;
-                if gap >= 2 {
-                    break;
-                }
-            } else {
-                gap = 0;
-                end = b;
-            }
-            b += 1;
-        }
-        groups.push((start, end));
-    }
-    let total = pairs.len() as f64;
-    groups
-        .into_iter()
-        .filter_map(|(s, e)| {
-            let (a, z) = (lo + s as f64 * width, lo + (e + 1) as f64 * width);
-            let members: Vec<&(f64, f64)> =
-                pairs.iter().filter(|(l, _)| *l >= a && *l <= z).collect();
-            let weight = members.len() as f64 / total;
-            if weight < 0.005 {
-                return None;
-            }
-            let median = |v: &mut Vec<f64>| {
-                v.sort_by(f64::total_cmp);
-                v[v.len() / 2]
-            };
-            let mut periods: Vec<f64> = members.iter().map(|(l, _)| l.exp()).collect();
-            let range_days = [periods[0], periods[periods.len() - 1]];
-            let mut masses: Vec<f64> = members
-                .iter()
-                .map(|(_, m)| *m)
-                .filter(|m| m.is_finite())
-                .collect();
-            Some(PeriodMode {
-                weight,
-                period_days: median(&mut periods),
-                range_days,
-                total_mass_msun: (!masses.is_empty()).then(|| median(&mut masses)),
-            })
-        })
-        .collect()
+    Ok(Draws {
+        walkers: nw,
+        sampled,
+        table,
+    })
 }
 
 /// The statement of what the posterior depends on, for every report.
@@ -311,27 +219,36 @@ fn metadata(
         ));
     }
     if modes.len() > 1 {
-        for (k, m) in modes.iter().enumerate() {
+        for m in modes {
             let mass = m
                 .total_mass_msun
                 .map_or_else(String::new, |v| format!(", median M1+M2 {v:.3} M_sun"));
             entries.push((
-                format!("period mode {}", k + 1),
+                format!("period mode {}", m.number),
                 format!(
-                    "weight {:.3}: P = {:.4} yr (range {:.4} to {:.4} yr){mass}",
+                    "weight {:.3} +- {:.3}: P = {:.4} yr (range {:.4} to {:.4} yr){mass}",
                     m.weight,
+                    m.weight_error,
                     m.period_days / 365.25,
                     m.range_days[0] / 365.25,
                     m.range_days[1] / 365.25
                 ),
             ));
         }
-        entries.push((
-            "caution".to_owned(),
-            "the posterior has several separate period modes: the intervals below span all of \
-             them; see the modes above and `dyad periods` for per-window results"
-                .to_owned(),
-        ));
+        // First thing a reader sees: the table's intervals are not those
+        // of one orbit.
+        entries.insert(
+            0,
+            (
+                "caution".to_owned(),
+                format!(
+                    "the posterior has {} separate period modes: the intervals in the table \
+                     below span all of them; each mode's own medians and intervals follow the \
+                     table (samples.csv column `mode`, plots in plots/mode-N/)",
+                    modes.len()
+                ),
+            ),
+        );
     }
     for w in &outcome.warnings {
         entries.push(("warning".to_owned(), w.clone()));
@@ -402,36 +319,94 @@ pub fn write_report(
 ) -> Result<()> {
     let draws = read_draws(files, model, outcome.burn_in)?;
     let summary = dyad_report::summarise(&draws.table)?;
-    let modes = period_modes(&draws.table);
+    let split = split_modes(&draws.table, draws.walkers);
+    let modes = &split.modes;
     let window = crate::run_folder::read_window(files)?;
-    let mut meta = metadata(config, model, outcome, &modes, window);
-    let mut diagnostics = diagnostics_document(model, outcome, &modes);
+    let mut meta = metadata(config, model, outcome, modes, window);
+    let mut diagnostics = diagnostics_document(model, outcome, modes);
     let (error_lines, error_document) =
         crate::error_summary::entries(config, model, &draws, &summary);
     meta.entries.extend(error_lines);
     diagnostics["error_model"] = error_document;
     let folder = &files.folder;
     let physical = physical_only(&summary);
-    dyad_report::write_text_summary(&folder.join("summary.txt"), &meta, &physical)?;
-    dyad_report::write_markdown_summary(&folder.join("summary.md"), &meta, &physical)?;
-    dyad_report::write_json_summary(&folder.join("summary.json"), &meta, &summary, &diagnostics)?;
-    dyad_report::write_samples_csv(&folder.join("samples.csv"), &draws.table)?;
-    write_text(
-        &folder.join("diagnostics.json"),
-        &serde_json::to_string_pretty(&diagnostics)?,
-    )?;
     let plots = files.plots();
     fs::create_dir_all(&plots).with_context(|| format!("creating {}", plots.display()))?;
     write_plots(
-        files,
+        &plots,
         model,
         &draws,
         &summary,
         config.output.orbits_on_sky_plot,
+        "",
     )?;
-    write_tables(folder, model, &draws, &summary)?;
+    let mut text = dyad_report::text_summary(&meta, &physical);
+    let mut markdown = dyad_report::markdown_summary(&meta, &physical);
+    let mut json = dyad_report::json_summary(&meta, &summary, &diagnostics)?;
+    if split.is_multimodal() {
+        let mut blocks = Vec::new();
+        for m in modes {
+            let of_mode = draws.of_mode(&split.labels, m.number)?;
+            let mode_summary = dyad_report::summarise(&of_mode.table)?;
+            let heading = format!(
+                "Period mode {} of {}: weight {:.3} +- {:.3}, {} draws, P = {:.4} yr",
+                m.number,
+                modes.len(),
+                m.weight,
+                m.weight_error,
+                mode_summary.n_draws,
+                m.period_days / 365.25
+            );
+            let mode_physical = physical_only(&mode_summary);
+            text.push_str(&format!(
+                "\n{heading}\n{}\n{}",
+                "-".repeat(heading.chars().count()),
+                dyad_report::text_parameter_table(&mode_physical)
+            ));
+            markdown.push_str(&format!(
+                "\n## {heading}\n\n{}",
+                dyad_report::markdown_parameter_table(&mode_physical)
+            ));
+            blocks.push(json!({
+                "mode": m.number,
+                "weight": m.weight,
+                "weight_error": m.weight_error,
+                "n_draws": mode_summary.n_draws,
+                "period_days": m.period_days,
+                "range_days": m.range_days,
+                "parameters": mode_summary.parameters,
+            }));
+            let mode_plots = plots.join(format!("mode-{}", m.number));
+            fs::create_dir_all(&mode_plots)
+                .with_context(|| format!("creating {}", mode_plots.display()))?;
+            write_plots(
+                &mode_plots,
+                model,
+                &of_mode,
+                &mode_summary,
+                config.output.orbits_on_sky_plot,
+                &format!(" (period mode {}, weight {:.2})", m.number, m.weight),
+            )?;
+        }
+        json["modes"] = serde_json::Value::Array(blocks);
+    }
+    let mut json_text = serde_json::to_string_pretty(&json)?;
+    json_text.push('\n');
+    write_text(&folder.join("summary.txt"), &text)?;
+    write_text(&folder.join("summary.md"), &markdown)?;
+    write_text(&folder.join("summary.json"), &json_text)?;
+    dyad_report::write_samples_csv(
+        &folder.join("samples.csv"),
+        &draws.table,
+        Some(&split.labels),
+    )?;
+    write_text(
+        &folder.join("diagnostics.json"),
+        &serde_json::to_string_pretty(&diagnostics)?,
+    )?;
+    write_tables(folder, model, &draws, &summary, &split)?;
     if !quiet {
-        say!("{}", dyad_report::text_summary(&meta, &physical))?;
+        say!("{text}")?;
         say!("results in {}", folder.display())?;
     }
     Ok(())
@@ -447,6 +422,7 @@ fn write_tables(
     model: &Model,
     draws: &Draws,
     summary: &PosteriorSummary,
+    split: &crate::modes::ModeSplit,
 ) -> Result<()> {
     let map_x = map_point(draws, summary, model.dim());
     if !model.dataset().astrometry.is_empty() {
@@ -457,25 +433,26 @@ fn write_tables(
             )?;
         }
     }
-    // One column of values until draws carry a mode index (then pass it
-    // as the grouping).
+    // One column per period mode when there are several.
     dyad_report::write_latex_elements_table(
         &folder.join("elements.tex"),
         "Orbital elements and masses (dyad posterior)",
         &crate::paper_table::element_rows(&draws.table),
-        None,
+        split.is_multimodal().then_some(split.labels.as_slice()),
     )?;
     Ok(())
 }
 
+/// Draws the plots of `draws` (the whole posterior or one mode's) into the
+/// folder `plots`; `note` is appended to every title.
 fn write_plots(
-    files: &RunFiles,
+    plots: &std::path::Path,
     model: &Model,
     draws: &Draws,
     summary: &PosteriorSummary,
     sky_orbits: usize,
+    note: &str,
 ) -> Result<()> {
-    let plots = files.plots();
     let table = &draws.table;
     let dim = model.dim();
     let map_x = map_point(draws, summary, dim);
@@ -515,7 +492,7 @@ fn write_plots(
     };
     dyad_report::plot_pairs(
         &plots.join("pairs"),
-        "Posterior of the main parameters",
+        &format!("Posterior of the main parameters{note}"),
         table,
         &pairs,
     )?;
@@ -541,13 +518,17 @@ fn write_plots(
     })
     .collect();
     if !panels.is_empty() {
-        dyad_report::plot_mass_distributions(&plots.join("masses"), "Masses", &panels)?;
+        dyad_report::plot_mass_distributions(
+            &plots.join("masses"),
+            &format!("Masses{note}"),
+            &panels,
+        )?;
     }
 
     if model.mode() != FitMode::VelocitiesOnly {
         dyad_report::plot_sky(
             &plots.join("sky"),
-            &sky_input(model, draws, map_x, sky_orbits),
+            &sky_input(model, draws, map_x, sky_orbits, note),
         )?;
         if let Some(input) = crate::astrometry_views::separation_input(model, &draws.sampled, map_x)
         {
@@ -555,7 +536,7 @@ fn write_plots(
         }
     }
     if model.mode() != FitMode::AstrometryOnly {
-        if let Some(input) = velocity_input(model, map_x) {
+        if let Some(input) = velocity_input(model, map_x, note) {
             dyad_report::plot_velocity_curves(&plots.join("velocities"), &input)?;
         }
     }
@@ -634,7 +615,13 @@ pub fn orbit_track(model: &Model, x: &[f64], points: usize) -> Option<Vec<(f64, 
     )
 }
 
-fn sky_input(model: &Model, draws: &Draws, map_x: &[f64], n_tracks: usize) -> SkyPlotInput {
+fn sky_input(
+    model: &Model,
+    draws: &Draws,
+    map_x: &[f64],
+    n_tracks: usize,
+    note: &str,
+) -> SkyPlotInput {
     let dim = model.dim();
     let n = draws.sampled.len() / dim;
     let step = (n / n_tracks.max(1)).max(1);
@@ -646,7 +633,7 @@ fn sky_input(model: &Model, draws: &Draws, map_x: &[f64], n_tracks: usize) -> Sk
     let model_at = |t: f64| model.predict_position(map_x, t).map(|p| (p.dra, p.ddec));
     let marks = crate::astrometry_views::sky_marks(model, map_x);
     SkyPlotInput {
-        title: "Relative orbit on the sky".to_owned(),
+        title: format!("Relative orbit on the sky{note}"),
         measurements: model
             .dataset()
             .astrometry
@@ -664,7 +651,7 @@ fn sky_input(model: &Model, draws: &Draws, map_x: &[f64], n_tracks: usize) -> Sk
     }
 }
 
-fn velocity_input(model: &Model, map_x: &[f64]) -> Option<VelocityPlotInput> {
+fn velocity_input(model: &Model, map_x: &[f64], note: &str) -> Option<VelocityPlotInput> {
     let o = model.layout().orbital(map_x)?;
     let residuals = model.residuals(map_x)?;
     let layout = model.layout();
@@ -699,7 +686,7 @@ fn velocity_input(model: &Model, map_x: &[f64]) -> Option<VelocityPlotInput> {
             .collect()
     };
     Some(VelocityPlotInput {
-        title: "Radial velocities folded on the period (best-fit orbit)".to_owned(),
+        title: format!("Radial velocities folded on the period (best-fit orbit){note}"),
         period_days: o.period_days,
         t_peri_jd: o.t_peri_jd,
         points,

@@ -1,108 +1,459 @@
-//! `dyad predict RUN EPOCHS...`: where the companion will be. For each epoch,
-//! the posterior of its separation, position angle and offsets, from the
-//! run's posterior draws; written as a table and a sky plot with the
-//! predicted positions marked.
+//! `dyad predict RUN [EPOCHS...] [--from A --to B --step S]`: where the
+//! companion will be, and how fast the stars will move, per period mode.
+//!
+//! For each epoch and each separate period mode of the posterior (see
+//! [`crate::modes`]), the posterior-predictive distribution of the
+//! separation, position angle, offsets and both stars' model velocities
+//! from that mode's draws: median and equal-tailed 68, 90 and 95 per cent
+//! intervals. Nothing is averaged across modes: a multimodal posterior is
+//! reported as the set of its modes with their weights. Position angles are
+//! summarised on the circle (Mardia & Jupp 2000, sect. 2.2).
+//!
+//! Each call writes a new numbered folder `RUN/prediction-N/` (never
+//! touching an earlier one) with `predictions.txt`, `.csv` and `.json` and
+//! a sky plot; the folder is assembled under a temporary name and renamed
+//! into place only when complete.
 
-use std::path::Path;
+use std::fs;
+use std::path::{Path, PathBuf};
 
 use anyhow::{bail, Context, Result};
+use rayon::prelude::*;
+use serde_json::json;
 
+use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
 use dyad_model::params::FitMode;
 use dyad_orbit::time::TimeScale;
-use dyad_report::stats::quantile_sorted as quantile;
+use dyad_report::stats::{circular_mean, quantile_sorted, wrap_around};
 use dyad_report::SkyPrediction;
 
 use crate::fit::Outcome;
-use crate::posterior::{orbit_track, read_draws, sky_measurement};
-use crate::run_folder::{write_text, ExistingRun};
+use crate::modes::split_modes;
+use crate::posterior::{orbit_track, read_draws, sky_measurement, Draws};
 use crate::terminal::{say, say_raw};
+use crate::run_folder::{write_text, ExistingRun};
 
-/// Circular median-centred statistics of position angles (degrees): the
-/// draws are unwrapped around their circular mean first.
-fn pa_interval(pa_deg: &[f64]) -> (f64, f64, f64) {
-    let (s, c) = pa_deg.iter().fold((0.0, 0.0), |(s, c), a| {
-        (s + a.to_radians().sin(), c + a.to_radians().cos())
-    });
-    let centre = s.atan2(c).to_degrees();
-    let mut unwrapped: Vec<f64> = pa_deg
-        .iter()
-        .map(|a| centre + (a - centre + 540.0).rem_euclid(360.0) - 180.0)
-        .collect();
-    unwrapped.sort_by(f64::total_cmp);
-    let q = |p| quantile(&unwrapped, p).rem_euclid(360.0);
-    (q(0.5), q(0.16), q(0.84))
+/// Most draws of one mode used for its predictions (evenly thinned beyond).
+const DRAWS_PER_MODE: usize = 4000;
+
+/// Most epochs one call predicts (a range finer than this is refused).
+const MAX_EPOCHS: usize = 20_000;
+
+/// Most epochs marked on the sky plot (evenly chosen beyond).
+const SKY_MARKS: usize = 12;
+
+/// The quantiles written for each quantity: the median and the ends of the
+/// 68, 90 and 95 per cent equal-tailed intervals.
+const PROBABILITIES: [f64; 7] = [0.5, 0.16, 0.84, 0.05, 0.95, 0.025, 0.975];
+
+/// What the user asked for.
+pub struct PredictOptions {
+    /// Explicit epochs.
+    pub epochs: Vec<f64>,
+    /// A range: first epoch, last epoch and step, in the time scale.
+    pub from: Option<f64>,
+    /// Last epoch of the range.
+    pub to: Option<f64>,
+    /// Step of the range.
+    pub step: Option<f64>,
+    /// Time scale name of the epochs.
+    pub scale: String,
 }
 
-/// `dyad predict`.
-pub fn predict(folder: &Path, epochs: &[f64], scale: &str) -> Result<()> {
-    let scale = TimeScale::from_column_name(scale)
-        .with_context(|| format!("unknown time scale '{scale}': use jyear, byear, jd or mjd"))?;
-    let run = ExistingRun::open(folder)?;
-    let model = Model::from_config(&run.config)?;
-    if model.mode() == FitMode::VelocitiesOnly {
-        bail!("the run has no astrometry, so it predicts no positions on the sky");
-    }
+/// The epochs asked for: the explicit ones and those of the range, sorted.
+pub fn epochs_of(options: &PredictOptions) -> Result<Vec<f64>> {
+    let mut epochs = options.epochs.clone();
     if let Some(bad) = epochs.iter().find(|e| !e.is_finite()) {
         bail!("epoch {bad} is not a number");
     }
+    match (options.from, options.to, options.step) {
+        (None, None, None) => {}
+        (Some(from), Some(to), Some(step)) => {
+            if !(from.is_finite() && to.is_finite() && step.is_finite()) {
+                bail!("--from, --to and --step must be numbers");
+            }
+            if step <= 0.0 {
+                bail!("--step must be positive (got {step})");
+            }
+            if from > to {
+                bail!("--from ({from}) is after --to ({to}): the range runs forwards");
+            }
+            // A small tolerance keeps the last epoch when (to - from) / step
+            // is a whole number up to rounding.
+            let n = ((to - from) / step + 1e-9).floor() as usize + 1;
+            if n > MAX_EPOCHS {
+                bail!("the range gives {n} epochs, more than {MAX_EPOCHS}: use a larger --step");
+            }
+            epochs.extend((0..n).map(|k| from + k as f64 * step));
+        }
+        _ => bail!("a range needs all of --from, --to and --step"),
+    }
+    if epochs.is_empty() {
+        bail!("no epochs: give epochs, or a range with --from, --to and --step");
+    }
+    if epochs.len() > MAX_EPOCHS {
+        bail!("{} epochs, more than {MAX_EPOCHS}", epochs.len());
+    }
+    epochs.sort_by(f64::total_cmp);
+    epochs.dedup();
+    Ok(epochs)
+}
+
+/// The predicted quantities, in column order.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Quantity {
+    Separation,
+    PositionAngle,
+    Dra,
+    Ddec,
+    VelocityPrimary,
+    VelocitySecondary,
+}
+
+impl Quantity {
+    fn column(self) -> &'static str {
+        match self {
+            Quantity::Separation => "sep_mas",
+            Quantity::PositionAngle => "pa_deg",
+            Quantity::Dra => "dra_mas",
+            Quantity::Ddec => "ddec_mas",
+            Quantity::VelocityPrimary => "rv_primary_kms",
+            Quantity::VelocitySecondary => "rv_secondary_kms",
+        }
+    }
+}
+
+/// The quantities the model can predict.
+fn quantities(model: &Model) -> Vec<Quantity> {
+    let mut q = Vec::new();
+    if model.mode() != FitMode::VelocitiesOnly {
+        q.extend([
+            Quantity::Separation,
+            Quantity::PositionAngle,
+            Quantity::Dra,
+            Quantity::Ddec,
+        ]);
+    }
+    if model.mode() != FitMode::AstrometryOnly {
+        if model.layout().has_velocities_of(Star::Primary) {
+            q.push(Quantity::VelocityPrimary);
+        }
+        if model.layout().has_velocities_of(Star::Secondary) {
+            q.push(Quantity::VelocitySecondary);
+        }
+    }
+    q
+}
+
+/// Quantiles [`PROBABILITIES`] of `values` (sorted in place); position
+/// angles are unwrapped around their circular mean first and shifted so the
+/// median lies in [0, 360) (interval ends may then fall outside it).
+fn quantiles(values: &mut [f64], angle: bool) -> [f64; 7] {
+    if angle {
+        let centre = circular_mean(values, 360.0);
+        let centre = if centre.is_finite() { centre } else { 180.0 };
+        for v in values.iter_mut() {
+            *v = wrap_around(*v, centre, 360.0);
+        }
+    }
+    values.sort_by(f64::total_cmp);
+    let mut q = PROBABILITIES.map(|p| quantile_sorted(values, p));
+    if angle && q[0].is_finite() {
+        let shift = q[0].rem_euclid(360.0) - q[0];
+        for v in q.iter_mut() {
+            *v += shift;
+        }
+    }
+    q
+}
+
+/// Mean (dRA*, dDec) and their covariance, mas and mas².
+type OffsetSpread = ((f64, f64), [[f64; 2]; 2]);
+
+/// Posterior-predictive quantiles of one mode at one epoch.
+struct ModePrediction {
+    /// Quantiles per quantity (in the order of [`quantities`]).
+    quantiles: Vec<[f64; 7]>,
+    /// Mean and covariance of the offsets (for the sky plot's ellipse).
+    offsets: Option<OffsetSpread>,
+}
+
+/// Predictions of one mode at every epoch.
+fn predict_mode(
+    model: &Model,
+    draws: &Draws,
+    quantities: &[Quantity],
+    times_jd: &[f64],
+) -> Result<Vec<ModePrediction>> {
+    let dim = model.dim();
+    let n = draws.table.n_draws();
+    let stride = n.div_ceil(DRAWS_PER_MODE).max(1);
+    let points: Vec<&[f64]> = (0..n)
+        .step_by(stride)
+        .map(|d| &draws.sampled[d * dim..(d + 1) * dim])
+        .collect();
+    times_jd
+        .par_iter()
+        .map(|&t| {
+            let mut columns: Vec<Vec<f64>> =
+                vec![Vec::with_capacity(points.len()); quantities.len()];
+            let mut offsets = Vec::with_capacity(points.len());
+            for x in &points {
+                let position = model.predict_position(x, t);
+                if let Some(s) = position {
+                    offsets.push((s.dra, s.ddec));
+                }
+                for (q, column) in quantities.iter().zip(columns.iter_mut()) {
+                    let value = match q {
+                        Quantity::Separation => position.map(|s| s.dra.hypot(s.ddec)),
+                        Quantity::PositionAngle => {
+                            position.map(|s| s.dra.atan2(s.ddec).to_degrees().rem_euclid(360.0))
+                        }
+                        Quantity::Dra => position.map(|s| s.dra),
+                        Quantity::Ddec => position.map(|s| s.ddec),
+                        // On the zero point of the first instrument.
+                        Quantity::VelocityPrimary => model.velocity_model(x, t, Star::Primary, 0),
+                        Quantity::VelocitySecondary => {
+                            model.velocity_model(x, t, Star::Secondary, 0)
+                        }
+                    };
+                    if let Some(v) = value.filter(|v| v.is_finite()) {
+                        column.push(v);
+                    }
+                }
+            }
+            if columns.iter().any(Vec::is_empty) {
+                bail!("no posterior draw of the mode gives a prediction at JD {t}");
+            }
+            let quantiles = quantities
+                .iter()
+                .zip(columns.iter_mut())
+                .map(|(q, c)| quantiles(c, *q == Quantity::PositionAngle))
+                .collect();
+            let offsets = (!offsets.is_empty()).then(|| {
+                let m = offsets.len() as f64;
+                let (mx, my) = offsets
+                    .iter()
+                    .fold((0.0, 0.0), |(a, b), (x, y)| (a + x / m, b + y / m));
+                let mut cov = [[0.0; 2]; 2];
+                for (x, y) in &offsets {
+                    cov[0][0] += (x - mx) * (x - mx) / m;
+                    cov[0][1] += (x - mx) * (y - my) / m;
+                    cov[1][1] += (y - my) * (y - my) / m;
+                }
+                cov[1][0] = cov[0][1];
+                ((mx, my), cov)
+            });
+            Ok(ModePrediction { quantiles, offsets })
+        })
+        .collect()
+}
+
+/// The first `RUN/prediction-N` that does not exist yet.
+fn next_prediction_folder(run: &Path) -> PathBuf {
+    (1..)
+        .map(|k| run.join(format!("prediction-{k}")))
+        .find(|p| !p.exists())
+        .expect("some numbered folder is free")
+}
+
+/// `dyad predict`.
+pub fn predict(folder: &Path, options: &PredictOptions) -> Result<()> {
+    let scale = TimeScale::from_column_name(&options.scale).with_context(|| {
+        format!(
+            "unknown time scale '{}': use jyear, byear, jd or mjd",
+            options.scale
+        )
+    })?;
+    let epochs = epochs_of(options)?;
+    let run = ExistingRun::open(folder)?;
+    let model = Model::from_config(&run.config)?;
     let outcome = Outcome::read(&run.files)?;
     let draws = read_draws(&run.files, &model, outcome.burn_in)?;
-    let dim = model.dim();
-    let n = draws.sampled.len() / dim;
-    let mut table = format!(
-        "Predicted position of the companion relative to the primary ({n} posterior draws)\n\
-         epoch ({})    separation [mas] (68 %)        position angle [deg] (68 %)     dRA* [mas]  dDec [mas]\n",
-        scale.column_name()
-    );
-    let mut predictions = Vec::new();
-    for &epoch in epochs {
-        let t = scale.to_jd(epoch);
-        let offsets: Vec<(f64, f64)> = (0..n)
-            .filter_map(|d| model.predict_position(&draws.sampled[d * dim..(d + 1) * dim], t))
-            .map(|s| (s.dra, s.ddec))
-            .collect();
-        if offsets.is_empty() {
-            bail!("no posterior draw gives a position at epoch {epoch}");
-        }
-        let mut sep: Vec<f64> = offsets.iter().map(|(x, y)| x.hypot(*y)).collect();
-        sep.sort_by(f64::total_cmp);
-        let pa: Vec<f64> = offsets
-            .iter()
-            .map(|(x, y)| x.atan2(*y).to_degrees().rem_euclid(360.0))
-            .collect();
-        let (pa_med, pa_lo, pa_hi) = pa_interval(&pa);
-        let m = offsets.len() as f64;
-        let (mx, my) = offsets
-            .iter()
-            .fold((0.0, 0.0), |(a, b), (x, y)| (a + x / m, b + y / m));
-        let (mut sxx, mut sxy, mut syy) = (0.0, 0.0, 0.0);
-        for (x, y) in &offsets {
-            sxx += (x - mx) * (x - mx) / m;
-            sxy += (x - mx) * (y - my) / m;
-            syy += (y - my) * (y - my) / m;
-        }
-        table.push_str(&format!(
-            "{epoch:<14} {:>9.2} [{:.2}, {:.2}]      {:>8.2} [{:.2}, {:.2}]      {mx:>10.2}  {my:>10.2}\n",
-            quantile(&sep, 0.5),
-            quantile(&sep, 0.16),
-            quantile(&sep, 0.84),
-            pa_med,
-            pa_lo,
-            pa_hi,
-        ));
-        predictions.push(SkyPrediction {
-            dra: mx,
-            ddec: my,
-            cov: Some([[sxx, sxy], [sxy, syy]]),
-            label: format!("{epoch}"),
-        });
+    let split = split_modes(&draws.table, draws.walkers);
+    let quantities = quantities(&model);
+    let times: Vec<f64> = epochs.iter().map(|&e| scale.to_jd(e)).collect();
+    let mut per_mode = Vec::new();
+    for m in &split.modes {
+        let of_mode = draws.of_mode(&split.labels, m.number)?;
+        per_mode.push(predict_mode(&model, &of_mode, &quantities, &times)?);
     }
-    say_raw!("{table}")?;
-    write_text(&run.files.folder.join("predictions.txt"), &table)?;
+
+    // Text, CSV and JSON.
+    let n_modes = split.modes.len();
+    let mut text = format!(
+        "Posterior-predictive ephemeris from {} draws, {} ({})\n\
+         Medians with 68 % intervals; the CSV and JSON also hold 90 and 95 %.\n\
+         Velocities are model velocities on the zero point of the first instrument.\n",
+        draws.table.n_draws(),
+        if n_modes > 1 {
+            format!("{n_modes} separate period modes, each on its own (never averaged)")
+        } else {
+            "one period mode".to_owned()
+        },
+        scale.column_name(),
+    );
+    let mut csv = format!("epoch_{},jd,mode,mode_weight", scale.column_name());
+    for q in &quantities {
+        for suffix in ["median", "lo68", "hi68", "lo90", "hi90", "lo95", "hi95"] {
+            csv.push_str(&format!(",{}_{suffix}", q.column()));
+        }
+    }
+    csv.push('\n');
+    let mut json_modes = Vec::new();
+    for (m, predictions) in split.modes.iter().zip(&per_mode) {
+        text.push_str(&format!(
+            "\nmode {} of {n_modes}: weight {:.3} +- {:.3}, P = {:.4} yr\n{:<14}",
+            m.number,
+            m.weight,
+            m.weight_error,
+            m.period_days / 365.25,
+            format!("epoch ({})", scale.column_name())
+        ));
+        for q in &quantities {
+            text.push_str(&format!("  {:>30}", q.column()));
+        }
+        text.push('\n');
+        let mut json_epochs = Vec::new();
+        for ((epoch, t), p) in epochs.iter().zip(&times).zip(predictions) {
+            text.push_str(&format!("{epoch:<14}"));
+            csv.push_str(&format!("{epoch:?},{t:?},{},{:?}", m.number, m.weight));
+            let mut entry = serde_json::Map::new();
+            entry.insert("epoch".into(), json!(epoch));
+            entry.insert("jd".into(), json!(t));
+            for (q, v) in quantities.iter().zip(&p.quantiles) {
+                text.push_str(&format!(
+                    "  {:>30}",
+                    format!("{:.2} [{:.2}, {:.2}]", v[0], v[1], v[2])
+                ));
+                for x in v {
+                    csv.push_str(&format!(",{x:?}"));
+                }
+                entry.insert(
+                    q.column().into(),
+                    json!({
+                        "median": v[0], "q68": [v[1], v[2]],
+                        "q90": [v[3], v[4]], "q95": [v[5], v[6]],
+                    }),
+                );
+            }
+            text.push('\n');
+            csv.push('\n');
+            json_epochs.push(serde_json::Value::Object(entry));
+        }
+        json_modes.push(json!({
+            "mode": m.number,
+            "weight": m.weight,
+            "weight_error": m.weight_error,
+            "period_days": m.period_days,
+            "epochs": json_epochs,
+        }));
+    }
+    let document = json!({
+        "time_scale": scale.column_name(),
+        "n_draws": draws.table.n_draws(),
+        "draws_per_mode_used_at_most": DRAWS_PER_MODE,
+        "velocity_zero_point": "the first instrument's offset",
+        "modes": json_modes,
+    });
+
+    // Assemble the folder under a temporary name, then move it into place:
+    // an earlier prediction is never touched and no half-written folder is
+    // left behind.
+    let target = next_prediction_folder(&run.files.folder);
+    let partial = run.files.folder.join(format!(
+        ".{}.partial-{}",
+        target
+            .file_name()
+            .and_then(|n| n.to_str())
+            .unwrap_or("prediction"),
+        std::process::id()
+    ));
+    let written = (|| -> Result<()> {
+        fs::create_dir_all(&partial).with_context(|| format!("creating {}", partial.display()))?;
+        write_text(&partial.join("predictions.txt"), &text)?;
+        write_text(&partial.join("predictions.csv"), &csv)?;
+        write_text(
+            &partial.join("predictions.json"),
+            &(serde_json::to_string_pretty(&document)? + "\n"),
+        )?;
+        if model.mode() != FitMode::VelocitiesOnly {
+            let input = sky_input(&model, &draws, &split, &epochs, &per_mode);
+            dyad_report::plot_sky(&partial.join("sky"), &input)?;
+        }
+        Ok(())
+    })();
+    if let Err(e) = written {
+        let _ = fs::remove_dir_all(&partial);
+        return Err(e);
+    }
+    if target.exists() {
+        let _ = fs::remove_dir_all(&partial);
+        bail!(
+            "{} appeared while predicting (another dyad predict?): run again",
+            target.display()
+        );
+    }
+    fs::rename(&partial, &target).with_context(|| format!("creating {}", target.display()))?;
+    say_raw!("{text}")?;
+    let earlier = target
+        .file_name()
+        .and_then(|n| n.to_str())
+        .and_then(|n| n.strip_prefix("prediction-"))
+        .and_then(|k| k.parse::<usize>().ok())
+        .filter(|&k| k > 1);
+    match earlier {
+        Some(2) => say!(
+            "wrote {} (the earlier prediction-1 is kept)",
+            target.display()
+        ),
+        Some(k) => say!(
+            "wrote {} (the earlier prediction-1 to prediction-{} are kept)",
+            target.display(),
+            k - 1
+        ),
+        None => say!("wrote {}", target.display()),
+    }?;
+    Ok(())
+}
+
+/// The sky plot: posterior orbits and, per mode, the predicted mean
+/// position with its 1-sigma spread at up to [`SKY_MARKS`] epochs.
+fn sky_input(
+    model: &Model,
+    draws: &Draws,
+    split: &crate::modes::ModeSplit,
+    epochs: &[f64],
+    per_mode: &[Vec<ModePrediction>],
+) -> dyad_report::SkyPlotInput {
+    let dim = model.dim();
+    let n = draws.table.n_draws();
     let step = (n / 100).max(1);
-    let input = dyad_report::SkyPlotInput {
-        title: "Predicted positions (mean and 1σ spread of the posterior)".to_owned(),
+    let mark_step = epochs.len().div_ceil(SKY_MARKS).max(1);
+    let mut predictions = Vec::new();
+    for (m, mode_predictions) in split.modes.iter().zip(per_mode) {
+        for (k, (epoch, p)) in epochs.iter().zip(mode_predictions).enumerate() {
+            if k % mark_step != 0 {
+                continue;
+            }
+            if let Some(((dra, ddec), cov)) = p.offsets {
+                let label = if split.is_multimodal() {
+                    format!("{epoch} (mode {})", m.number)
+                } else {
+                    format!("{epoch}")
+                };
+                predictions.push(SkyPrediction {
+                    dra,
+                    ddec,
+                    cov: Some(cov),
+                    label,
+                });
+            }
+        }
+    }
+    dyad_report::SkyPlotInput {
+        title: "Predicted positions (per mode: mean and 1σ spread)".to_owned(),
         measurements: model
             .dataset()
             .astrometry
@@ -112,13 +463,10 @@ pub fn predict(folder: &Path, epochs: &[f64], scale: &str) -> Result<()> {
         tracks: (0..n)
             .step_by(step)
             .take(100)
-            .filter_map(|d| orbit_track(&model, &draws.sampled[d * dim..(d + 1) * dim], 240))
+            .filter_map(|d| orbit_track(model, &draws.sampled[d * dim..(d + 1) * dim], 240))
             .collect(),
         best_track: None,
         predictions,
         ..Default::default()
-    };
-    let files = dyad_report::plot_sky(&run.files.plots().join("predictions"), &input)?;
-    say!("plot: {}", files.png.display())?;
-    Ok(())
+    }
 }

@@ -120,7 +120,7 @@ fn fit_recovers_the_simulated_system_and_writes_a_complete_run_folder() {
     // The samples table reads back with one column per parameter.
     let csv = fs::read_to_string(run.join("samples.csv")).unwrap();
     let header = csv.lines().next().unwrap();
-    assert_eq!(header.split(',').count(), names.len() + 1, "{header}");
+    assert_eq!(header.split(',').count(), names.len() + 2, "{header}");
     assert!(csv.lines().count() > 1000);
     // The plots exist, decode, have a sensible size and are not blank.
     for plot in [
@@ -188,16 +188,47 @@ fn fit_recovers_the_simulated_system_and_writes_a_complete_run_folder() {
     let after = fs::read_to_string(run.join("summary.json")).unwrap();
     assert!(before == after, "dyad report changed summary.json");
 
-    // `dyad predict` gives positions at future epochs.
+    // The samples table ends with the mode column: one mode, all draws 1.
+    assert!(header.ends_with(",mode"), "{header}");
+    assert!(csv.lines().skip(1).all(|l| l.ends_with(",1")));
+    assert!(
+        summary["modes"].is_null(),
+        "a unimodal run has no mode blocks"
+    );
+
+    // `dyad predict` gives positions at future epochs, explicit and over a
+    // range, into a new numbered folder ...
     let out = run_ok(
         dyad()
             .args(["predict"])
             .arg(&run)
-            .args(["2027.5", "2030.0"]),
+            .args(["2027.5", "--from", "2028", "--to", "2030", "--step", "0.5"]),
     );
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(text.contains("2027.5") && text.contains("2030"), "{text}");
-    assert!(run.join("plots/predictions.png").is_file());
+    assert!(text.contains("2027.5") && text.contains("2029.5"), "{text}");
+    let first = run.join("prediction-1");
+    for file in [
+        "predictions.txt",
+        "predictions.csv",
+        "predictions.json",
+        "sky.png",
+    ] {
+        assert!(first.join(file).is_file(), "{file} missing");
+    }
+    let table = fs::read_to_string(first.join("predictions.csv")).unwrap();
+    // 2027.5 plus 2028.0, 2028.5, ..., 2030.0: six epochs of one mode.
+    assert_eq!(table.lines().count(), 1 + 6, "{table}");
+    assert!(table
+        .lines()
+        .next()
+        .unwrap()
+        .contains("rv_secondary_kms_hi95"));
+    // ... and a second prediction never overwrites the first.
+    let before = fs::read(first.join("predictions.csv")).unwrap();
+    let out = run_ok(dyad().args(["predict"]).arg(&run).arg("2031"));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("prediction-1 is kept"));
+    assert!(run.join("prediction-2/predictions.json").is_file());
+    assert_eq!(fs::read(first.join("predictions.csv")).unwrap(), before);
 
     // A changed data file is noticed.
     let positions = dir.path().join("quill-and-ember-positions.csv");

@@ -57,8 +57,8 @@ pub use plots::{
 pub use plots::{plot_next_epoch_advice, AdviceCurve, AdvicePlotInput};
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{
-    json_summary, markdown_summary, text_summary, write_json_summary, write_markdown_summary,
-    write_samples_csv, write_text_summary,
+    json_summary, markdown_parameter_table, markdown_summary, text_parameter_table, text_summary,
+    write_json_summary, write_markdown_summary, write_samples_csv, write_text_summary,
 };
 pub use tables::{
     latex_elements_table, write_astrometry_residuals_csv, write_latex_elements_table,

@@ -162,6 +162,15 @@ pub fn text_summary(meta: &RunMetadata, summary: &PosteriorSummary) -> String {
          in [0, period): an interval written [350, 10] runs through 0.\n\n",
     );
 
+    out.push_str(&text_parameter_table(summary));
+    out
+}
+
+/// The parameter table of the plain-text summary alone (one row per
+/// parameter: median, 68 % errors, 95 % interval, MAP), e.g. for a block
+/// per period mode.
+pub fn text_parameter_table(summary: &PosteriorSummary) -> String {
+    let mut out = String::new();
     let rows: Vec<Row> = summary.parameters.iter().map(row_of).collect();
     let mut widths: [usize; 7] = HEADERS.map(|h| h.chars().count());
     for r in &rows {
@@ -221,6 +230,13 @@ pub fn markdown_summary(meta: &RunMetadata, summary: &PosteriorSummary) -> Strin
          written [350, 10] runs through 0.\n\n",
         summary.n_draws, summary.map_draw, summary.map_log_posterior, summary.quantile_rule
     ));
+    out.push_str(&markdown_parameter_table(summary));
+    out
+}
+
+/// The parameter table of the Markdown summary alone.
+pub fn markdown_parameter_table(summary: &PosteriorSummary) -> String {
+    let mut out = String::new();
     out.push_str("| Parameter | Unit | Median | −68% | +68% | 95% interval | MAP |\n");
     out.push_str("|:--|:--|--:|--:|--:|--:|--:|\n");
     for p in &summary.parameters {
@@ -306,10 +322,29 @@ pub fn write_json_summary(
 /// `log_posterior`, then one row per draw. Floats use Rust's shortest
 /// round-trip representation (full precision); non-finite values are written
 /// `NaN`, `inf`, `-inf`, which pandas.read_csv parses as floats.
-pub fn write_samples_csv(path: &Path, draws: &PosteriorDraws) -> Result<(), ReportError> {
+///
+/// With `modes`, a last integer column `mode` holds each draw's mode number
+/// (one per draw).
+pub fn write_samples_csv(
+    path: &Path,
+    draws: &PosteriorDraws,
+    modes: Option<&[usize]>,
+) -> Result<(), ReportError> {
     draws.validate()?;
+    if let Some(m) = modes {
+        if m.len() != draws.n_draws() {
+            return Err(ReportError::InvalidInput(format!(
+                "{} mode labels for {} draws",
+                m.len(),
+                draws.n_draws()
+            )));
+        }
+    }
     let mut names: Vec<String> = draws.params.iter().map(|p| p.column_name()).collect();
     names.push("log_posterior".to_string());
+    if modes.is_some() {
+        names.push("mode".to_string());
+    }
     for (i, n) in names.iter().enumerate() {
         if n.is_empty() {
             return Err(ReportError::InvalidInput(format!(
@@ -336,7 +371,14 @@ pub fn write_samples_csv(path: &Path, draws: &PosteriorDraws) -> Result<(), Repo
             for v in &draws.values[d * n_params..(d + 1) * n_params] {
                 let _ = write!(line, "{v:?},");
             }
-            let _ = writeln!(line, "{lp:?}");
+            match modes {
+                Some(m) => {
+                    let _ = writeln!(line, "{lp:?},{}", m[d]);
+                }
+                None => {
+                    let _ = writeln!(line, "{lp:?}");
+                }
+            }
             w.write_all(line.as_bytes()).map_err(io)?;
         }
         Ok(())

@@ -218,7 +218,7 @@ fn samples_csv_round_trips_full_precision() {
         lp.clone(),
     )
     .unwrap();
-    write_samples_csv(&path, &d).unwrap();
+    write_samples_csv(&path, &d, None).unwrap();
     let text = fs::read_to_string(&path).unwrap();
     let mut lines = text.lines();
     assert_eq!(lines.next().unwrap(), "k1_km_s,q,log_posterior");
@@ -250,7 +250,7 @@ fn duplicate_column_names_are_refused() {
         vec![0.0],
     )
     .unwrap();
-    assert!(write_samples_csv(&dir.path().join("s.csv"), &d).is_err());
+    assert!(write_samples_csv(&dir.path().join("s.csv"), &d, None).is_err());
     assert!(fs::read_dir(dir.path()).unwrap().next().is_none());
 }
 

@@ -1,0 +1,269 @@
+//! Separate period modes of a posterior: finding them, labelling every draw
+//! with its mode, the weight of each mode with its uncertainty, and the
+//! draws of one mode on their own (for per-mode summaries, plots and
+//! predictions, so that nothing is ever averaged across modes).
+//!
+//! Modes are numbered from 1 in order of increasing period.
+
+use dyad_report::PosteriorDraws;
+
+use crate::posterior::Draws;
+
+/// One separated period mode of the posterior.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct PeriodMode {
+    /// Mode number (1-based, in order of increasing period).
+    pub number: usize,
+    /// Posterior weight: the fraction of draws labelled with this mode.
+    pub weight: f64,
+    /// Standard error of the weight: the spread of the per-walker fractions
+    /// over the square root of the number of walkers (walkers treated as
+    /// independent chains, so a walker that never leaves its mode counts as
+    /// one draw, not as many).
+    pub weight_error: f64,
+    /// Median period, days.
+    pub period_days: f64,
+    /// Range of the mode's draws, days.
+    pub range_days: [f64; 2],
+    /// Median total mass in the mode, when the model has one.
+    pub total_mass_msun: Option<f64>,
+}
+
+/// The modes and the mode of every draw.
+#[derive(Debug, Clone)]
+pub struct ModeSplit {
+    /// Modes in order of increasing period (one mode when unimodal).
+    pub modes: Vec<PeriodMode>,
+    /// 1-based mode number of each draw, in draw order.
+    pub labels: Vec<usize>,
+}
+
+impl ModeSplit {
+    /// Whether the posterior has more than one separate period mode.
+    pub fn is_multimodal(&self) -> bool {
+        self.modes.len() > 1
+    }
+}
+
+/// Groups of ln P (as [lo, hi] ranges) separated by empty stretches of a
+/// histogram, in increasing order. A bin holding under 0.05 per cent of the
+/// draws counts as empty; two groups are separate when at least two empty
+/// bins lie between them; a group holding under 0.5 per cent of the draws is
+/// dropped (its draws join the nearest group).
+fn ln_period_groups(ln_p: &[f64]) -> Vec<[f64; 2]> {
+    let finite: Vec<f64> = ln_p.iter().copied().filter(|l| l.is_finite()).collect();
+    if finite.is_empty() {
+        return Vec::new();
+    }
+    let lo = finite.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = finite.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    const BINS: usize = 200;
+    let width = ((hi - lo) / BINS as f64).max(1e-12);
+    let bin = |l: f64| (((l - lo) / width) as usize).min(BINS - 1);
+    let mut counts = [0usize; BINS];
+    for &l in &finite {
+        counts[bin(l)] += 1;
+    }
+    let total = finite.len() as f64;
+    let empty = |c: usize| (c as f64) < 5e-4 * total;
+    let mut groups: Vec<(usize, usize)> = Vec::new();
+    let mut b = 0;
+    while b < BINS {
+        if empty(counts[b]) {
+            b += 1;
+            continue;
+        }
+        let start = b;
+        let mut end = b;
+        let mut gap = 0;
+        while b < BINS {
+            if empty(counts[b]) {
+                gap += 1;
+                if gap >= 2 {
+                    break;
+                }
+            } else {
+                gap = 0;
+                end = b;
+            }
+            b += 1;
+        }
+        groups.push((start, end));
+    }
+    groups
+        .into_iter()
+        .filter(|&(s, e)| counts[s..=e].iter().sum::<usize>() as f64 >= 0.005 * total)
+        .map(|(s, e)| [lo + s as f64 * width, lo + (e + 1) as f64 * width])
+        .collect()
+}
+
+/// Index of the group nearest to `l` (0 inside a range).
+fn nearest_group(groups: &[[f64; 2]], l: f64) -> usize {
+    let distance = |g: &[f64; 2]| (g[0] - l).max(l - g[1]).max(0.0);
+    groups
+        .iter()
+        .enumerate()
+        .min_by(|a, b| distance(a.1).total_cmp(&distance(b.1)))
+        .map_or(0, |(i, _)| i)
+}
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    dyad_report::stats::quantile_sorted(&v, 0.5)
+}
+
+/// Splits the draws into period modes and labels every draw. `walkers` is
+/// the number of walkers per record (draw `d` came from walker
+/// `d % walkers`), used for the weights' errors. A model without a period
+/// column (there is always one in dyad) gives one mode.
+pub fn split_modes(table: &PosteriorDraws, walkers: usize) -> ModeSplit {
+    let n = table.n_draws();
+    let ln_p: Vec<f64> = table
+        .index_of("period_days")
+        .map(|i| table.column(i).iter().map(|p| p.ln()).collect())
+        .unwrap_or_else(|| vec![f64::NAN; n]);
+    let mut groups = ln_period_groups(&ln_p);
+    if groups.is_empty() {
+        groups.push([f64::NEG_INFINITY, f64::INFINITY]);
+    }
+    let labels: Vec<usize> = ln_p
+        .iter()
+        .map(|&l| {
+            if l.is_finite() {
+                nearest_group(&groups, l) + 1
+            } else {
+                1
+            }
+        })
+        .collect();
+    let mass = table.index_of("total_mass_msun").map(|i| table.column(i));
+    let walkers = walkers.max(1);
+    let modes = (1..=groups.len())
+        .map(|k| {
+            let members: Vec<usize> = (0..n).filter(|&d| labels[d] == k).collect();
+            let weight = members.len() as f64 / n.max(1) as f64;
+            // Per-walker fraction of draws in this mode.
+            let mut in_mode = vec![0usize; walkers];
+            let mut all = vec![0usize; walkers];
+            for d in 0..n {
+                all[d % walkers] += 1;
+                if labels[d] == k {
+                    in_mode[d % walkers] += 1;
+                }
+            }
+            let fractions: Vec<f64> = in_mode
+                .iter()
+                .zip(&all)
+                .filter(|(_, &a)| a > 0)
+                .map(|(&m, &a)| m as f64 / a as f64)
+                .collect();
+            let nf = fractions.len() as f64;
+            let mean = fractions.iter().sum::<f64>() / nf;
+            let var = fractions.iter().map(|f| (f - mean).powi(2)).sum::<f64>() / (nf - 1.0);
+            let weight_error = if nf > 1.0 {
+                (var / nf).sqrt()
+            } else {
+                f64::NAN
+            };
+            let periods: Vec<f64> = members.iter().map(|&d| ln_p[d].exp()).collect();
+            let range_days = [
+                periods.iter().copied().fold(f64::INFINITY, f64::min),
+                periods.iter().copied().fold(f64::NEG_INFINITY, f64::max),
+            ];
+            let total_mass_msun = mass.as_ref().and_then(|m| {
+                let v: Vec<f64> = members
+                    .iter()
+                    .map(|&d| m[d])
+                    .filter(|v| v.is_finite())
+                    .collect();
+                (!v.is_empty()).then(|| median(v))
+            });
+            PeriodMode {
+                number: k,
+                weight,
+                weight_error,
+                period_days: median(periods),
+                range_days,
+                total_mass_msun,
+            }
+        })
+        .collect();
+    ModeSplit { modes, labels }
+}
+
+/// The separate period modes (ranges and weights), for choosing period
+/// windows.
+pub fn period_modes(draws: &Draws) -> Vec<PeriodMode> {
+    split_modes(&draws.table, draws.walkers).modes
+}
+
+impl Draws {
+    /// The draws labelled `mode` (1-based) in `labels`, in draw order.
+    pub fn of_mode(&self, labels: &[usize], mode: usize) -> anyhow::Result<Draws> {
+        let dim = self.sampled.len() / self.table.n_draws().max(1);
+        let np = self.table.n_params();
+        let keep: Vec<usize> = (0..labels.len()).filter(|&d| labels[d] == mode).collect();
+        let mut sampled = Vec::with_capacity(keep.len() * dim);
+        let mut values = Vec::with_capacity(keep.len() * np);
+        let mut log_posterior = Vec::with_capacity(keep.len());
+        for &d in &keep {
+            sampled.extend_from_slice(&self.sampled[d * dim..(d + 1) * dim]);
+            values.extend_from_slice(&self.table.values[d * np..(d + 1) * np]);
+            log_posterior.push(self.table.log_posterior[d]);
+        }
+        let table = PosteriorDraws::new(self.table.params.clone(), values, log_posterior)?;
+        Ok(Draws {
+            // A mode's draws no longer come in whole records.
+            walkers: 1,
+            sampled,
+            table,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use dyad_report::ParameterInfo;
+
+    fn table(periods: &[f64]) -> PosteriorDraws {
+        PosteriorDraws::new(
+            vec![ParameterInfo::linear("period_days", "d", "P")],
+            periods.to_vec(),
+            vec![0.0; periods.len()],
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn two_separate_period_groups_are_two_labelled_modes() {
+        // 3000 draws near 100 d and 1000 near 300 d, 4 walkers; walker 3
+        // holds all of the long-period draws.
+        let mut p = Vec::new();
+        for d in 0..4000 {
+            let jitter = 1.0 + 0.01 * ((d * 7919 % 101) as f64 / 101.0 - 0.5);
+            p.push(if d % 4 == 3 { 300.0 } else { 100.0 } * jitter);
+        }
+        let split = split_modes(&table(&p), 4);
+        assert_eq!(split.modes.len(), 2);
+        assert!((split.modes[0].weight - 0.75).abs() < 1e-12);
+        assert!((split.modes[1].weight - 0.25).abs() < 1e-12);
+        // Per-walker fractions (1, 1, 1, 0): sd = 0.5, over sqrt(4) walkers.
+        assert!((split.modes[1].weight_error - 0.25).abs() < 1e-12);
+        for (d, &l) in split.labels.iter().enumerate() {
+            assert_eq!(l, if d % 4 == 3 { 2 } else { 1 });
+        }
+        assert!((split.modes[1].period_days - 300.0).abs() < 2.0);
+    }
+
+    #[test]
+    fn a_single_group_is_one_mode_with_every_draw_labelled_1() {
+        let p: Vec<f64> = (0..1000).map(|d| 50.0 + d as f64 * 0.01).collect();
+        let split = split_modes(&table(&p), 10);
+        assert_eq!(split.modes.len(), 1);
+        assert!(split.labels.iter().all(|&l| l == 1));
+        assert_eq!(split.modes[0].weight, 1.0);
+        // Every walker holds the same fraction (1): no spread.
+        assert_eq!(split.modes[0].weight_error, 0.0);
+    }
+}
