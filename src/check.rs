@@ -59,12 +59,14 @@ pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
         ),
     ];
     let mode = model.mode();
-    if mode != FitMode::VelocitiesOnly {
+    if layout.has_inclination() {
         let inc = match &p.inclination {
             InclinationPrior::Isotropic => "isotropic (uniform cos i)".to_owned(),
             InclinationPrior::Angle(a) => describe_prior(a, "rad"),
         };
         lines.push(("inclination".to_owned(), inc));
+    }
+    if mode != FitMode::VelocitiesOnly {
         lines.push((
             "node (Omega)".to_owned(),
             describe_prior(&p.node_rad, "rad"),
@@ -110,6 +112,9 @@ pub fn describe(config: &RunConfig, model: &Model, plan: &SamplingPlan) -> Strin
     let mode = match model.mode() {
         FitMode::Joint => "joint fit of relative astrometry and radial velocities",
         FitMode::AstrometryOnly => "relative astrometry only (Omega folded to [0, 180) deg)",
+        FitMode::VelocitiesOnly if model.layout().has_inclination() => {
+            "radial velocities only, with an inclination known from elsewhere (no node or parallax)"
+        }
         FitMode::VelocitiesOnly => "radial velocities only (no inclination, node or parallax)",
     };
     out.push_str(&format!("configuration: {}\n", config.file.display()));

@@ -4,12 +4,14 @@
 //! (continue a stopped run), `report` (redraw summaries and plots), `check`
 //! (validate a configuration without sampling), `simulate` (invented data
 //! from known elements), `periods` (compare period windows by evidence) and
-//! `predict` (where the companion will be at given epochs).
+//! `predict` (where the companion will be at given epochs) and `advise`
+//! (which date and measurement would teach most).
 
 // The argument docs below are clap's help texts, where `[sampler]` names a
 // table of the configuration file, not a documentation link.
 #![allow(rustdoc::broken_intra_doc_links)]
 
+mod advise;
 mod calibrate;
 mod check;
 mod density;
@@ -107,6 +109,48 @@ enum Command {
         #[arg(long, default_value = "jyear")]
         scale: String,
     },
+    /// Which date, and which kind of measurement, would shrink the mass
+    /// intervals most: the expected gain of one more measurement at each
+    /// candidate date, from a finished run.
+    Advise {
+        /// The run folder.
+        run: PathBuf,
+        /// First candidate date (Julian year unless --scale says otherwise).
+        #[arg(long)]
+        from: f64,
+        /// Last candidate date.
+        #[arg(long)]
+        to: f64,
+        /// Step between candidate dates (years for jyear/byear, days for jd/mjd).
+        #[arg(long)]
+        step: f64,
+        /// Time scale of --from, --to and --step: jyear, byear, jd or mjd.
+        #[arg(long, default_value = "jyear")]
+        scale: String,
+        /// Observing season as calendar months, e.g. 4-9 (April to
+        /// September) or 10-3; may be given several times.
+        #[arg(long = "season")]
+        seasons: Vec<String>,
+        /// Error of a new position, each offset, mas (default: the median
+        /// quoted error of the run's positions).
+        #[arg(long)]
+        position_error_mas: Option<f64>,
+        /// Error of a new velocity, km/s (default: the median quoted error).
+        #[arg(long)]
+        velocity_error_kms: Option<f64>,
+        /// Posterior draws to reweight.
+        #[arg(long, default_value_t = 10_000)]
+        draws: usize,
+        /// Simulated outcomes per date.
+        #[arg(long, default_value_t = 48)]
+        outcomes: usize,
+        /// Seed of the simulated outcomes.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Replace an earlier advice in the run folder.
+        #[arg(long)]
+        overwrite: bool,
+    },
     /// Simulation-based calibration: draw systems from the prior, simulate,
     /// fit each, and test that the truth's ranks are uniform
     /// (settings keys in configs/calibration/README.md).
@@ -178,6 +222,35 @@ fn run(cli: Cli) -> Result<()> {
             },
         ),
         Command::Predict { run, epochs, scale } => predict::predict(&run, &epochs, &scale),
+        Command::Advise {
+            run,
+            from,
+            to,
+            step,
+            scale,
+            seasons,
+            position_error_mas,
+            velocity_error_kms,
+            draws,
+            outcomes,
+            seed,
+            overwrite,
+        } => advise::advise(
+            &run,
+            &advise::AdviseOptions {
+                from,
+                to,
+                step,
+                scale,
+                seasons,
+                position_error_mas,
+                velocity_error_kms,
+                draws,
+                outcomes,
+                seed,
+                overwrite,
+            },
+        ),
         Command::Calibrate {
             settings,
             systems,

@@ -140,8 +140,15 @@ impl Model {
                 if secondary {
                     q.push(K2);
                 }
+                let inclined = layout.has_inclination();
+                if inclined {
+                    q.push(Inclination);
+                }
                 if primary && secondary {
                     q.extend([MassRatio, M1Sin3i, M2Sin3i]);
+                    if inclined {
+                        q.extend([MassPrimary, MassSecondary, TotalMass, AxisAu]);
+                    }
                 }
                 if primary {
                     q.push(MassFunction);
@@ -229,7 +236,21 @@ impl Model {
         let k2 = o.k2_kms.unwrap_or(nan);
         let m = o.total_mass_msun.unwrap_or(nan);
         let ratio = o.mass_ratio.unwrap_or(nan);
-        let sin3i = o.inclination_rad.map_or(nan, |i| i.sin().powi(3));
+        let sin_i = o.inclination_rad.map_or(nan, f64::sin);
+        let sin3i = sin_i.powi(3);
+        let velocities_only = self.mode() == FitMode::VelocitiesOnly;
+        // Velocities alone give M sin^3 i and a sin i (laws::msini3_msun,
+        // laws::a_sini_km); a known inclination turns them into M and a.
+        let msini3 = || laws::msini3_msun(k1, k2, p, e);
+        let a_sini_au = || {
+            let k = match (o.k1_kms, o.k2_kms) {
+                (Some(a), Some(b)) => a + b,
+                (Some(a), None) => a,
+                (None, Some(b)) => b,
+                (None, None) => nan,
+            };
+            laws::a_sini_km(k, p, e) / dyad_orbit::constants::AU_KM
+        };
         match q {
             Quantity::PeriastronJd => o.t_peri_jd,
             Quantity::PeriastronJyear => TimeScale::JulianYear.from_jd(o.t_peri_jd),
@@ -243,36 +264,35 @@ impl Model {
             Quantity::Inclination => o.inclination_rad.map_or(nan, deg),
             Quantity::Node => o.node_rad.map_or(nan, deg),
             Quantity::AxisMas => o.semi_major_axis_mas.unwrap_or(nan),
+            Quantity::AxisAu if velocities_only => a_sini_au() / sin_i,
             Quantity::AxisAu => o.semi_major_axis_au.unwrap_or(nan),
+            Quantity::TotalMass if velocities_only => {
+                let (m1, m2) = msini3();
+                (m1 + m2) / sin3i
+            }
             Quantity::TotalMass => m,
             Quantity::Parallax => o.parallax_mas.unwrap_or(nan),
             Quantity::MassRatio => ratio,
+            Quantity::MassPrimary if velocities_only => msini3().0 / sin3i,
+            Quantity::MassSecondary if velocities_only => msini3().1 / sin3i,
             Quantity::MassPrimary => m / (1.0 + ratio),
             Quantity::MassSecondary => m * ratio / (1.0 + ratio),
             Quantity::K1 => k1,
             Quantity::K2 => k2,
             Quantity::M1Sin3i => match self.mode() {
                 FitMode::Joint => m / (1.0 + ratio) * sin3i,
-                _ => laws::msini3_msun(k1, k2, p, e).0,
+                _ => msini3().0,
             },
             Quantity::M2Sin3i => match self.mode() {
                 FitMode::Joint => m * ratio / (1.0 + ratio) * sin3i,
-                _ => laws::msini3_msun(k1, k2, p, e).1,
+                _ => msini3().1,
             },
             Quantity::MassFunction => laws::mass_function_msun(k1, p, e),
             Quantity::OrbitalParallax => match (o.semi_major_axis_mas, o.inclination_rad) {
                 (Some(a), Some(i)) => laws::orbital_parallax_mas(a, i, k1, k2, p, e),
                 _ => nan,
             },
-            Quantity::ASiniAu => {
-                let k = match (o.k1_kms, o.k2_kms) {
-                    (Some(a), Some(b)) => a + b,
-                    (Some(a), None) => a,
-                    (None, Some(b)) => b,
-                    (None, None) => nan,
-                };
-                laws::a_sini_km(k, p, e) / dyad_orbit::constants::AU_KM
-            }
+            Quantity::ASiniAu => a_sini_au(),
             Quantity::Offset(k) => self.layout().offset_kms(x, k),
             Quantity::Jitter(k) => self.layout().jitter_kms(x, k),
         }

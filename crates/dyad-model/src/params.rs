@@ -735,7 +735,11 @@ impl ParameterLayout {
         };
         let phase = b.angle("phase", 1.0);
         let astrometric = mode != FitMode::VelocitiesOnly;
-        let cos_inclination = if astrometric {
+        // With velocities alone the data say nothing about i, but an
+        // inclination known from elsewhere (eclipses, interferometry) turns
+        // M sin^3 i into masses: then i is sampled from its prior.
+        let known_inclination = matches!(priors.inclination, InclinationPrior::Angle(_));
+        let cos_inclination = if astrometric || known_inclination {
             Some(match &priors.inclination {
                 InclinationPrior::Isotropic => Coord::Linear(b.push("cos_inclination", "1")),
                 InclinationPrior::Angle(p) => match p.fixed_value() {
@@ -967,6 +971,13 @@ impl ParameterLayout {
                 out.k2_kms = Some(k2);
             }
         } else {
+            if let Some(ci) = self.cos_inclination {
+                let cos_i = ci.value(x);
+                if !(-1.0..=1.0).contains(&cos_i) {
+                    return None;
+                }
+                out.inclination_rad = Some(cos_i.acos());
+            }
             out.k1_kms = self.k1.map(|c| c.value(x));
             out.k2_kms = self.k2.map(|c| c.value(x));
             if let (Some(k1), Some(k2)) = (out.k1_kms, out.k2_kms) {
@@ -1326,6 +1337,12 @@ impl ParameterLayout {
                 draw(rng, &pr.jitter_kms[k], f64::MIN_POSITIVE, f64::INFINITY),
             );
         }
+    }
+
+    /// Whether the inclination is a parameter (always with astrometry; with
+    /// velocities alone only when its prior is not the isotropic default).
+    pub fn has_inclination(&self) -> bool {
+        self.cos_inclination.is_some()
     }
 
     /// Index of the `ln_period_days` coordinate, if the period is sampled.

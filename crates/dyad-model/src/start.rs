@@ -34,7 +34,7 @@ use dyad_orbit::{laws, CampbellElements, Orbit, ThieleInnes};
 use crate::config::StartValues;
 use crate::data::{RelativePosition, Star};
 use crate::likelihood::Model;
-use crate::params::{FitMode, PhysicalParameters};
+use crate::params::{FitMode, InclinationPrior, PhysicalParameters};
 
 /// Settings of the starting-point search.
 #[derive(Debug, Clone, PartialEq)]
@@ -270,6 +270,13 @@ fn linear_variants(model: &Model, base: &PhysicalParameters, out: &mut Vec<Vec<f
         let mut cand = base.clone();
         cand.orbit.omega_rad = omega;
         let mut parallaxes = vec![o.parallax_mas];
+        if let (None, InclinationPrior::Angle(prior)) = (geometry, &priors.inclination) {
+            // Velocities alone with a known inclination: the data say
+            // nothing about i, so it starts where its prior is.
+            if cand.orbit.inclination_rad.is_none() {
+                cand.orbit.inclination_rad = Some(clamp_into(prior.mean(), prior.support()));
+            }
+        }
         if let Some(g) = geometry {
             cand.orbit.inclination_rad = Some(g.inc_rad);
             cand.orbit.node_rad = Some(g.node_rad);

@@ -52,6 +52,7 @@ pub use plots::{
     MassInterval, PlotFiles, RankHistogramInput, SkyMeasurement, SkyPlotInput, SkyPrediction, Star,
     VelocityPlotInput, VelocityPoint, WindowSummary, RANK_BAND_PROBABILITY,
 };
+pub use plots::{plot_next_epoch_advice, AdviceCurve, AdvicePlotInput};
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{
     json_summary, markdown_summary, text_summary, write_json_summary, write_markdown_summary,

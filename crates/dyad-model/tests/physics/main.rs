@@ -9,3 +9,4 @@ mod likelihood;
 mod modes;
 mod simulate;
 mod start;
+mod velocities_only;

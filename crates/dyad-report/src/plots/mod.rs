@@ -5,6 +5,7 @@
 //! Design", <https://jfly.uni-koeln.de/color/>), used sparingly on white with
 //! grey axes; markers differ in shape as well as colour.
 
+mod advice;
 mod category;
 mod corner;
 pub mod density;
@@ -14,6 +15,7 @@ mod ranks;
 mod sky;
 mod velocity;
 
+pub use advice::{plot_next_epoch_advice, AdviceCurve, AdvicePlotInput};
 pub use masses::{plot_mass_distributions, DistributionPanel};
 pub use periods::{plot_period_windows, MassInterval, WindowSummary};
 pub use ranks::{
