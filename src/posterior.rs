@@ -278,6 +278,14 @@ fn metadata(
             outcome.steps, outcome.status, outcome.burn_in, config.sampler.seed
         ),
     ));
+    entries.push((
+        "stopping rule".to_owned(),
+        format!(
+            "every sampled parameter needs at least {} effective draws in the bulk and in the \
+             tails after burn-in, and split R-hat at most {} (Vehtari et al. 2021)",
+            config.sampler.effective_draws, config.sampler.max_split_rhat
+        ),
+    ));
     if outcome.inverse_temperatures.len() > 1 {
         entries.push((
             "tempering".to_owned(),
