@@ -169,8 +169,15 @@ pub fn describe(config: &RunConfig, model: &Model, plan: &SamplingPlan) -> Strin
         out.push_str(&format!("  {name:<20} {prior}\n"));
     }
     let s = &plan.sampler;
+    let rule = s.convergence.as_ref().map_or_else(String::new, |c| {
+        format!(
+            " (stops earlier once every parameter has {} effective draws, bulk and tails, \
+             and split R-hat at most {})",
+            c.min_effective_draws, c.max_split_rhat
+        )
+    });
     out.push_str(&format!(
-        "sampler: {} walkers, at most {} steps (stops earlier once longer than 50 autocorrelation times), thinning {}, seed {}\n",
+        "sampler: {} walkers, at most {} steps{rule}, thinning {}, seed {}\n",
         s.n_walkers, s.max_steps, s.thin, s.seed
     ));
     match &s.tempering {

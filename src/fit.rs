@@ -49,9 +49,11 @@ pub struct Outcome {
     /// Cold-chain diagnostics.
     pub diagnostics: serde_json::Value,
     /// Inverse temperatures of the final ladder.
-    pub betas: Vec<f64>,
-    /// Swap acceptance between neighbouring temperatures.
-    pub swap_acceptance: Vec<f64>,
+    #[serde(alias = "betas")]
+    pub inverse_temperatures: Vec<f64>,
+    /// Swap acceptance rate between neighbouring temperatures.
+    #[serde(alias = "swap_acceptance")]
+    pub swap_acceptance_rate: Vec<f64>,
     /// Evidence, when the run was tempered.
     pub evidence: Option<serde_json::Value>,
 }
@@ -76,8 +78,8 @@ impl Outcome {
             burn_in: result.burn_in,
             warnings: result.warnings.clone(),
             diagnostics: diagnostics_json(&result.diagnostics)?,
-            betas: result.betas.clone(),
-            swap_acceptance: result.swap_acceptance.clone(),
+            inverse_temperatures: result.betas.clone(),
+            swap_acceptance_rate: result.swap_acceptance.clone(),
             evidence,
         })
     }

@@ -147,10 +147,7 @@ fn discover_windows(
     )?;
     let outcome = crate::fit::Outcome::read(&files)?;
     let draws = read_draws(&files, model, outcome.burn_in)?;
-    let mut ranges: Vec<[f64; 2]> = period_modes(&draws)
-        .iter()
-        .map(|m| m.range_days)
-        .collect();
+    let mut ranges: Vec<[f64; 2]> = period_modes(&draws).iter().map(|m| m.range_days).collect();
     let settings = StartSettings {
         seed: config.sampler.seed,
         ..StartSettings::default()
@@ -403,7 +400,13 @@ mod tests {
     }
 
     fn windows_of(draws: &PosteriorDraws) -> Vec<(f64, f64)> {
-        let ranges: Vec<[f64; 2]> = period_modes(draws).iter().map(|m| m.range_days).collect();
+        // One walker: every draw its own chain (the weights' errors are not
+        // used here).
+        let ranges: Vec<[f64; 2]> = crate::modes::split_modes(draws, 1)
+            .modes
+            .iter()
+            .map(|m| m.range_days)
+            .collect();
         windows_around(&ranges, (36.5, 10_957.5))
     }
 

@@ -85,7 +85,8 @@ impl SamplingPlan {
         sampler.burn_in_fraction = Some(s.burn_in_fraction);
         sampler.checkpoint = checkpoint;
         sampler.convergence = Some(Convergence {
-            tau_multiple: s.autocorrelation_times,
+            min_effective_draws: s.effective_draws,
+            max_split_rhat: s.max_split_rhat,
             ..Convergence::default()
         });
         let burn_in_steps = (s.burn_in_fraction * s.max_steps as f64).round() as u64;

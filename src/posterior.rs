@@ -198,10 +198,18 @@ fn metadata(
             outcome.steps, outcome.status, outcome.burn_in, config.sampler.seed
         ),
     ));
-    if outcome.betas.len() > 1 {
+    entries.push((
+        "stopping rule".to_owned(),
+        format!(
+            "every sampled parameter needs at least {} effective draws in the bulk and in the \
+             tails after burn-in, and split R-hat at most {} (Vehtari et al. 2021)",
+            config.sampler.effective_draws, config.sampler.max_split_rhat
+        ),
+    ));
+    if outcome.inverse_temperatures.len() > 1 {
         entries.push((
             "tempering".to_owned(),
-            format!("{} temperatures", outcome.betas.len()),
+            format!("{} temperatures", outcome.inverse_temperatures.len()),
         ));
     }
     if let Some(ev) = &outcome.evidence {
@@ -288,8 +296,8 @@ fn diagnostics_document(
                 "name": name,
                 "autocorrelation_time_steps": d["tau"][i],
                 "split_rhat": d["split_rhat"][i],
-                "ess_bulk": d["ess_bulk"][i],
-                "ess_tail": d["ess_tail"][i],
+                "effective_draws_bulk": d["effective_draws_bulk"][i],
+                "effective_draws_tail": d["effective_draws_tail"][i],
             })
         })
         .collect();
@@ -300,10 +308,11 @@ fn diagnostics_document(
         "mean_acceptance": d["mean_acceptance"],
         "acceptance_per_walker": d["acceptance"],
         "stuck_walkers": d["stuck_walkers"],
+        "stopping_rule_last_check": d["last_check"],
         "parameters": per_parameter,
         "warnings": outcome.warnings,
-        "betas": outcome.betas,
-        "swap_acceptance": outcome.swap_acceptance,
+        "inverse_temperatures": outcome.inverse_temperatures,
+        "swap_acceptance_rate": outcome.swap_acceptance_rate,
         "evidence": outcome.evidence,
         "period_modes": modes,
     })

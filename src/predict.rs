@@ -31,8 +31,8 @@ use dyad_report::SkyPrediction;
 use crate::fit::Outcome;
 use crate::modes::split_modes;
 use crate::posterior::{orbit_track, read_draws, sky_measurement, Draws};
-use crate::terminal::{say, say_raw};
 use crate::run_folder::{write_text, ExistingRun};
+use crate::terminal::{say, say_raw};
 
 /// Most draws of one mode used for its predictions (evenly thinned beyond).
 const DRAWS_PER_MODE: usize = 4000;

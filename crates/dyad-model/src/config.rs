@@ -160,9 +160,13 @@ pub struct SamplerSettings {
     pub burn_in_fraction: f64,
     /// `seed` (default 1).
     pub seed: u64,
-    /// `autocorrelation_times`: stop once the chain after burn-in is longer
-    /// than this many autocorrelation times (default 50).
-    pub autocorrelation_times: f64,
+    /// `effective_draws`: stop once every sampled parameter has at least
+    /// this many effective draws after burn-in, in the bulk and in the tails
+    /// (default 1000) ...
+    pub effective_draws: f64,
+    /// ... `max_split_rhat`: and a rank-normalised split R-hat of at most
+    /// this (default 1.03).
+    pub max_split_rhat: f64,
     /// `temperatures`: "off" (default), "auto", or a number.
     pub tempering: Tempering,
     /// `period_windows_days` or `period_windows_years`: period ranges
@@ -177,7 +181,8 @@ impl Default for SamplerSettings {
             max_steps: 20_000,
             thinning: 1,
             burn_in_fraction: 0.5,
-            autocorrelation_times: 50.0,
+            effective_draws: 1000.0,
+            max_split_rhat: 1.03,
             seed: 1,
             tempering: Tempering::Off,
             period_windows_days: Vec::new(),
@@ -902,12 +907,21 @@ fn read_start(s: &Section<'_>, priors: &PriorSettings) -> Result<StartValues, Mo
 }
 
 fn read_sampler(s: &Section<'_>) -> Result<SamplerSettings, ModelError> {
+    if s.get("autocorrelation_times").is_some() {
+        return Err(s.error(
+            "autocorrelation_times",
+            "is no longer a setting: the run now stops on effective draws; use \
+             `effective_draws = 1000` (fewest effective draws of every parameter, bulk and \
+             tails) and `max_split_rhat = 1.03` instead",
+        ));
+    }
     s.allow_only(&[
         "walkers",
         "max_steps",
         "thinning",
         "burn_in_fraction",
-        "autocorrelation_times",
+        "effective_draws",
+        "max_split_rhat",
         "seed",
         "temperatures",
         "period_windows_days",
@@ -928,13 +942,18 @@ fn read_sampler(s: &Section<'_>) -> Result<SamplerSettings, ModelError> {
             format!("must be in [0, 1), got {burn_in_fraction}"),
         ));
     }
-    let autocorrelation_times = s
-        .f64("autocorrelation_times")?
-        .unwrap_or(d.autocorrelation_times);
-    if !(autocorrelation_times.is_finite() && autocorrelation_times >= 1.0) {
+    let effective_draws = s.f64("effective_draws")?.unwrap_or(d.effective_draws);
+    if !(effective_draws.is_finite() && effective_draws >= 1.0) {
         return Err(s.error(
-            "autocorrelation_times",
-            format!("must be a number of at least 1, got {autocorrelation_times}"),
+            "effective_draws",
+            format!("must be a number of at least 1, got {effective_draws}"),
+        ));
+    }
+    let max_split_rhat = s.f64("max_split_rhat")?.unwrap_or(d.max_split_rhat);
+    if !(max_split_rhat.is_finite() && max_split_rhat > 1.0) {
+        return Err(s.error(
+            "max_split_rhat",
+            format!("must be a number above 1 (e.g. 1.01 to 1.1), got {max_split_rhat}"),
         ));
     }
     let tempering = match s.get("temperatures") {
@@ -966,7 +985,8 @@ fn read_sampler(s: &Section<'_>) -> Result<SamplerSettings, ModelError> {
         thinning: s.count("thinning", 1)?.map_or(d.thinning, |v| v as usize),
         burn_in_fraction,
         seed: s.count("seed", 0)?.unwrap_or(d.seed),
-        autocorrelation_times,
+        effective_draws,
+        max_split_rhat,
         tempering,
         period_windows_days: windows,
     })

@@ -127,8 +127,10 @@ pub struct ParameterDiagnostics {
     /// Rank-normalised split R-hat, max of bulk and folded.
     pub rhat: f64,
     /// Bulk effective sample size (draws, all walkers together).
+    #[serde(rename = "effective_draws_bulk")]
     pub ess_bulk: f64,
     /// Tail effective sample size (5 and 95 per cent quantiles).
+    #[serde(rename = "effective_draws_tail")]
     pub ess_tail: f64,
 }
 

@@ -18,7 +18,8 @@
 //! - [`Start`]: a ball around a point, user draws, or explicit positions,
 //!   checked by [`check_initial_ensemble`].
 //! - [`RunConfig`], [`run`] and [`resume`]: the run loop, with the
-//!   autocorrelation stopping rule ([`Convergence`]), [`Progress`] reports, a
+//!   stopping rule on effective draws and split R-hat ([`Convergence`],
+//!   [`ConvergenceCheck`]), [`Progress`] reports, a
 //!   cancel flag ([`RunControl`]), periodic atomic checkpoints
 //!   ([`CheckpointConfig`]) and a [`RunResult`] with [`RunDiagnostics`].
 //! - [`SampleSink`]: where thinned samples go, in memory ([`MemorySink`]) or
@@ -67,8 +68,8 @@ pub use init::{check_initial_ensemble, ensemble_rank, DrawFn, Start};
 pub use moves::{Move, MoveMixture};
 pub use rng::StreamRng;
 pub use run::{
-    checkpoint_step, resume, run, CheckpointConfig, Convergence, Progress, RunConfig, RunControl,
-    RunDiagnostics, RunResult, RunStatus, StuckWalker,
+    checkpoint_step, resume, run, CheckpointConfig, Convergence, ConvergenceCheck, Progress,
+    RunConfig, RunControl, RunDiagnostics, RunResult, RunStatus, StuckWalker,
 };
 pub use storage::{
     for_each_record, read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink,

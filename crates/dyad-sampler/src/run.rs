@@ -11,7 +11,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::checkpoint::{read_payload, write_atomic, Decoder, Encoder};
 use crate::density::LogDensity;
-use crate::diagnostics::{ess_bulk, ess_tail, split_rhat, AutocorrEstimator};
+use crate::diagnostics::{ess_bulk, ess_tail, split_rhat, AutocorrEstimator, DiagnosticsWorkspace};
 use crate::ensemble::{step_all, Rung, Schedule, Walker};
 use crate::error::SamplerError;
 use crate::history::History;
@@ -22,19 +22,33 @@ use crate::storage::{for_each_record, FileSink, MemorySink, RecordKind, SampleSi
 use crate::team::{helper_count, StopOnDrop, Team};
 use crate::tempering::{Ladder, TemperedLogLikelihoods, TemperingConfig};
 
+/// Burn-in of a run that did not meet its stopping rule, in units of the
+/// largest autocorrelation time (at most half the run).
+const FALLBACK_BURN_IN_TAUS: f64 = 3.0;
+
 /// Steps between re-timings of the density (to choose the thread schedule).
 const RETIME_STEPS: u64 = 1000;
 
-/// The autocorrelation stopping rule.
+/// The stopping rule: enough effective draws of every parameter, and walkers
+/// that agree.
+///
+/// At each check the second half of the cold-chain history (the first half
+/// is burn-in) must give every sampled parameter at least
+/// `min_effective_draws` effective draws in the bulk *and* in the tails, and
+/// a rank-normalised split R-hat of at most `max_split_rhat` (both as
+/// defined by Vehtari et al. 2021, Bayesian Analysis 16, 667, with each
+/// walker a chain). The R-hat bound is what guards against a short chain:
+/// for a stationary chain split R-hat is about `1 + tau / (2 n)` for split
+/// halves of `n` steps (common practice), so 1.03 asks for halves of some 17
+/// autocorrelation times per walker, before the effective-draw count (which
+/// a short chain can overstate) is believed.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Convergence {
-    /// Stop only when the chain is longer than this many autocorrelation
-    /// times for every parameter (50 is common practice).
-    pub tau_multiple: f64,
-    /// ... and every tau changed by less than this fraction since the last check.
-    pub max_relative_change: f64,
-    /// Burn-in, in units of the largest tau.
-    pub burn_in_taus: f64,
+    /// Fewest effective draws, bulk and tail, of every parameter (400 is the
+    /// least Vehtari et al. 2021 recommend for reliable intervals).
+    pub min_effective_draws: f64,
+    /// Largest rank-normalised split R-hat of any parameter.
+    pub max_split_rhat: f64,
     /// Fewest steps between checks; checks are also at least 10 per cent of
     /// the run apart, so their cost stays a small fraction of the run.
     pub min_check_interval: u64,
@@ -43,11 +57,80 @@ pub struct Convergence {
 impl Default for Convergence {
     fn default() -> Self {
         Self {
-            tau_multiple: 50.0,
-            max_relative_change: 0.05,
-            burn_in_taus: 3.0,
+            min_effective_draws: 1000.0,
+            max_split_rhat: 1.03,
             min_check_interval: 100,
         }
+    }
+}
+
+/// What the last check of the stopping rule found (the worst parameter for
+/// each condition).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct ConvergenceCheck {
+    /// Step of the check.
+    pub step: u64,
+    /// Steps of history the check used (after its burn-in).
+    pub span: u64,
+    /// Smallest bulk effective-draw count of any parameter.
+    pub fewest_bulk: f64,
+    /// Smallest tail effective-draw count of any parameter.
+    pub fewest_tail: f64,
+    /// Largest split R-hat of any parameter.
+    pub largest_rhat: f64,
+}
+
+impl ConvergenceCheck {
+    /// Measures the draws of `dim` parameters, `n_steps` steps of
+    /// `n_walkers` walkers each (`draws_of(p)` step-major, as in
+    /// [`crate::diagnostics`]); `step` and `span` are recorded as given.
+    pub fn measure<'a>(
+        step: u64,
+        span: u64,
+        (n_steps, n_walkers, dim): (usize, usize, usize),
+        draws_of: impl Fn(usize) -> &'a [f64],
+        workspace: &mut DiagnosticsWorkspace,
+    ) -> Self {
+        let mut check = Self {
+            step,
+            span,
+            fewest_bulk: f64::INFINITY,
+            fewest_tail: f64::INFINITY,
+            largest_rhat: 0.0,
+        };
+        // A failed estimate (e.g. a parameter that never moved) counts as no
+        // effective draws and an infinite R-hat: never converged.
+        let finite = |v: Result<f64, _>| v.ok().filter(|v: &f64| v.is_finite());
+        for p in 0..dim {
+            let draws = draws_of(p);
+            let bulk = finite(workspace.ess_bulk(draws, n_steps, n_walkers)).unwrap_or(0.0);
+            let tail = finite(workspace.ess_tail(draws, n_steps, n_walkers)).unwrap_or(0.0);
+            let rhat =
+                finite(workspace.split_rhat(draws, n_steps, n_walkers)).unwrap_or(f64::INFINITY);
+            check.fewest_bulk = check.fewest_bulk.min(bulk);
+            check.fewest_tail = check.fewest_tail.min(tail);
+            check.largest_rhat = check.largest_rhat.max(rhat);
+        }
+        check
+    }
+
+    /// The smaller of the bulk and tail counts.
+    pub fn fewest(&self) -> f64 {
+        self.fewest_bulk.min(self.fewest_tail)
+    }
+
+    /// Whether the rule is met.
+    pub fn met(&self, rule: &Convergence) -> bool {
+        self.fewest() >= rule.min_effective_draws && self.largest_rhat <= rule.max_split_rhat
+    }
+
+    /// Steps the run would need at the current rate: effective draws grow
+    /// in proportion to the span of the second half of the history, which is
+    /// half the run since the history began.
+    pub fn steps_needed(&self, rule: &Convergence, history_start: u64) -> Option<u64> {
+        let rate = self.fewest() / self.span as f64;
+        (rate.is_finite() && rate > 0.0 && self.span > 0)
+            .then(|| history_start + (2.0 * rule.min_effective_draws / rate).ceil() as u64)
     }
 }
 
@@ -124,7 +207,7 @@ pub struct RunConfig {
 }
 
 impl RunConfig {
-    /// Defaults: stretch move, autocorrelation stopping rule, no thinning,
+    /// Defaults: stretch move, effective-draw stopping rule, no thinning,
     /// parallel evaluation, no checkpoints, no tempering.
     pub fn new(n_walkers: usize, seed: u64, max_steps: u64) -> Self {
         Self {
@@ -167,11 +250,13 @@ impl RunConfig {
             ));
         }
         if let Some(c) = &self.convergence {
-            if !(c.tau_multiple > 0.0 && c.max_relative_change > 0.0 && c.burn_in_taus >= 0.0)
+            if !(c.min_effective_draws > 0.0 && c.max_split_rhat >= 1.0)
                 || c.min_check_interval == 0
             {
                 return Err(SamplerError::Config(
-                    "convergence settings must be positive".into(),
+                    "the stopping rule needs a positive number of effective draws, \
+                     a split R-hat bound of at least 1 and a check interval of at least 1"
+                        .into(),
                 ));
             }
         }
@@ -206,9 +291,12 @@ pub struct Progress {
     pub max_steps: u64,
     /// Cold-chain acceptance fraction since the previous report.
     pub acceptance: f64,
-    /// Largest current autocorrelation time estimate (steps), once there is one.
-    pub tau_max: Option<f64>,
-    /// Steps the stopping rule currently asks for (tau_multiple x tau_max, capped).
+    /// What the last check of the stopping rule found, once there was one.
+    pub last_check: Option<ConvergenceCheck>,
+    /// The stopping rule, if there is one.
+    pub rule: Option<Convergence>,
+    /// Steps the stopping rule asks for at the current rate of effective
+    /// draws (capped at `max_steps`).
     pub target_steps: Option<u64>,
     /// Wall time since this (possibly resumed) run started.
     pub elapsed: Duration,
@@ -264,16 +352,19 @@ pub struct RunDiagnostics {
     pub tau: Vec<f64>,
     /// Rank-normalised split R-hat per parameter (walkers as chains).
     pub split_rhat: Vec<f64>,
-    /// Bulk effective sample size per parameter, of the kept (progressively
-    /// thinned) history after burn-in: a slight underestimate of the ESS of
-    /// the full chain when the history is thinned.
-    pub ess_bulk: Vec<f64>,
-    /// Tail effective sample size per parameter.
-    pub ess_tail: Vec<f64>,
+    /// Bulk effective draws (effective sample size) per parameter, of the
+    /// kept (progressively thinned) history after burn-in: a slight
+    /// underestimate for the full chain when the history is thinned.
+    pub effective_draws_bulk: Vec<f64>,
+    /// Tail effective draws per parameter.
+    pub effective_draws_tail: Vec<f64>,
     /// Steps between the history snapshots these were computed from.
     pub history_thin: u64,
     /// Snapshots used.
     pub history_len: usize,
+    /// What the last check of the stopping rule found (none without a rule
+    /// or before the history was long enough).
+    pub last_check: Option<ConvergenceCheck>,
 }
 
 /// What a run returns; the samples themselves are in the sink.
@@ -310,7 +401,7 @@ struct State {
     ladder: Ladder,
     step: u64,
     history: History,
-    last_tau: Vec<f64>,
+    last_check: Option<ConvergenceCheck>,
     next_check: u64,
     converged: bool,
     burn_in: u64,
@@ -368,7 +459,7 @@ impl State {
             ladder,
             step: 0,
             history: History::new(dim, nw, config.history_capacity, 0),
-            last_tau: Vec::new(),
+            last_check: None,
             next_check: first_check(config, 0),
             converged: false,
             burn_in: 0,
@@ -386,7 +477,16 @@ impl State {
         e.u64(self.next_check);
         e.u64(self.sample_position);
         e.u64(self.ladder_position);
-        e.f64s(&self.last_tau);
+        let check = self.last_check.map_or(vec![], |c| {
+            vec![
+                c.step as f64,
+                c.span as f64,
+                c.fewest_bulk,
+                c.fewest_tail,
+                c.largest_rhat,
+            ]
+        });
+        e.f64s(&check);
         e.bytes(&rng_bytes(&self.swap_rng)?);
         for r in &self.rungs {
             e.f64(r.beta);
@@ -443,7 +543,22 @@ impl State {
         self.next_check = d.u64()?;
         self.sample_position = d.u64()?;
         self.ladder_position = d.u64()?;
-        self.last_tau = d.f64s()?;
+        self.last_check = match d.f64s()?.as_slice() {
+            [] => None,
+            &[step, span, fewest_bulk, fewest_tail, largest_rhat] => Some(ConvergenceCheck {
+                step: step as u64,
+                span: span as u64,
+                fewest_bulk,
+                fewest_tail,
+                largest_rhat,
+            }),
+            _ => {
+                return Err(SamplerError::BadFile {
+                    path: path.to_path_buf(),
+                    reason: "the stopping rule's last check is malformed".into(),
+                })
+            }
+        };
         self.swap_rng = rng_from(d.bytes()?, path)?;
         for r in self.rungs.iter_mut() {
             r.beta = d.f64()?;
@@ -655,7 +770,7 @@ fn blank_state(config: &RunConfig, dim: usize) -> State {
         ladder: Ladder::new(n_temps, nw),
         step: 0,
         history: History::new(dim, nw, config.history_capacity, 0),
-        last_tau: Vec::new(),
+        last_check: None,
         next_check: 0,
         converged: false,
         burn_in: 0,
@@ -720,6 +835,7 @@ fn drive_steps<D: LogDensity + ?Sized>(
     let mut record = vec![0.0; nw * (dim + 2)];
     let mut ladder_record = vec![0.0; nw * n_temps];
     let mut estimator = AutocorrEstimator::new();
+    let mut workspace = DiagnosticsWorkspace::new();
     let started = Instant::now();
     let start_step = state.step;
     let mut last_checkpoint = Instant::now();
@@ -777,7 +893,7 @@ fn drive_steps<D: LogDensity + ?Sized>(
             state.ladder.frozen = true;
             state.ladder.reset_counts();
             state.history.reset(step);
-            state.last_tau.clear();
+            state.last_check = None;
             state.next_check = first_check(config, step);
         }
 
@@ -808,7 +924,7 @@ fn drive_steps<D: LogDensity + ?Sized>(
 
         if let Some(conv) = &config.convergence {
             if state.ladder.frozen && step >= state.next_check {
-                check_convergence(state, conv, config.burn_in_fraction, &mut estimator);
+                check_convergence(state, conv, config.burn_in_fraction, &mut workspace);
             }
         }
 
@@ -852,17 +968,17 @@ fn fraction_of(fraction: f64, steps: u64) -> u64 {
 
 fn check_convergence(
     state: &mut State,
-    conv: &Convergence,
+    rule: &Convergence,
     burn_in_fraction: Option<f64>,
-    estimator: &mut AutocorrEstimator,
+    workspace: &mut DiagnosticsWorkspace,
 ) {
     let h = &state.history;
-    state.next_check = state.step + conv.min_check_interval.max(state.step / 10);
-    // Estimate tau after the burn-in only: the start holds the approach to
-    // the typical set, which inflates tau and keeps the estimate drifting
-    // (common practice: discard the start before estimating tau, e.g. Sokal
-    // 1997 sec. 3). Without a fixed fraction that is the second half of the
-    // history.
+    state.next_check = state.step + rule.min_check_interval.max(state.step / 10);
+    // The rule judges the chain after the burn-in only: the start holds the
+    // approach to the typical set. With a fixed share that is the share
+    // (which must not reach back into the ladder's adaptation); without one
+    // it is the first half of the history (common practice; Vehtari et al.
+    // 2021 sect. 3 likewise discard the first half of each chain).
     let first = match burn_in_fraction {
         Some(f) => {
             let burn_in = fraction_of(f, state.step);
@@ -878,34 +994,21 @@ fn check_convergence(
     if kept < 8 {
         return;
     }
-    let taus: Vec<f64> = (0..h.dim)
-        .map(|p| {
-            estimator
-                .estimate(h.draws(p, first), kept, h.n_walkers)
-                .map_or(f64::NAN, |a| a.tau * h.thin as f64)
-        })
-        .collect();
-    let span = (kept as u64 * h.thin) as f64;
-    let long_enough = taus
-        .iter()
-        .all(|t| t.is_finite() && span > conv.tau_multiple * t);
-    let stable = taus.len() == state.last_tau.len()
-        && taus
-            .iter()
-            .zip(&state.last_tau)
-            .all(|(t, l)| ((t - l) / t).abs() < conv.max_relative_change);
-    if long_enough && stable {
-        let tau_max = taus.iter().cloned().fold(0.0, f64::max);
+    let check = ConvergenceCheck::measure(
+        state.step,
+        kept as u64 * h.thin,
+        (kept, h.n_walkers, h.dim),
+        |p| h.draws(p, first),
+        workspace,
+    );
+    if check.met(rule) {
         state.converged = true;
         state.burn_in = match burn_in_fraction {
             Some(f) => fraction_of(f, state.step),
-            None => {
-                let half = first as u64 * h.thin;
-                h.start + half.max((conv.burn_in_taus * tau_max).ceil() as u64)
-            }
+            None => h.start + first as u64 * h.thin,
         };
     }
-    state.last_tau = taus;
+    state.last_check = Some(check);
 }
 
 fn fallback_burn_in(state: &State, config: &RunConfig, estimator: &mut AutocorrEstimator) -> u64 {
@@ -915,7 +1018,6 @@ fn fallback_burn_in(state: &State, config: &RunConfig, estimator: &mut AutocorrE
         return fraction_of(f, state.step).max(h.start);
     }
     let run = state.step.saturating_sub(h.start);
-    let factor = config.convergence.as_ref().map_or(3.0, |c| c.burn_in_taus);
     let mut tau_max = f64::NAN;
     if h.len >= 8 {
         tau_max = 0.0;
@@ -934,7 +1036,7 @@ fn fallback_burn_in(state: &State, config: &RunConfig, estimator: &mut AutocorrE
         }
     }
     if tau_max.is_finite() {
-        h.start + ((factor * tau_max).ceil() as u64).min(run / 2)
+        h.start + ((FALLBACK_BURN_IN_TAUS * tau_max).ceil() as u64).min(run / 2)
     } else {
         h.start + run / 2
     }
@@ -948,12 +1050,10 @@ fn progress_report(
     acceptance: f64,
 ) -> Progress {
     let elapsed = started.elapsed();
-    let tau_max = (!state.last_tau.is_empty() && state.last_tau.iter().all(|t| t.is_finite()))
-        .then(|| state.last_tau.iter().cloned().fold(0.0, f64::max));
-    let target_steps = match (&config.convergence, tau_max) {
-        (Some(c), Some(t)) => Some(
-            ((state.history.start as f64 + c.tau_multiple * t).ceil() as u64).min(config.max_steps),
-        ),
+    let target_steps = match (&config.convergence, &state.last_check) {
+        (Some(rule), Some(check)) => check
+            .steps_needed(rule, state.history.start)
+            .map(|s| s.min(config.max_steps)),
         _ => None,
     };
     let goal = target_steps.unwrap_or(config.max_steps).max(state.step);
@@ -966,7 +1066,8 @@ fn progress_report(
         step: state.step,
         max_steps: config.max_steps,
         acceptance,
-        tau_max,
+        last_check: state.last_check,
+        rule: config.convergence.clone(),
         target_steps,
         elapsed,
         eta,
@@ -1058,37 +1159,28 @@ fn finish(
             stuck_walkers.len()
         ));
     }
-    if let (RunStatus::StepCap, Some(c)) = (status, &config.convergence) {
-        // The rule needs a long chain *and* stable tau estimates; say which
-        // failed when the chain itself is long enough.
-        let span = state.step.saturating_sub(state.burn_in) as f64;
-        let why = if tau_max > 0.0 && span >= c.tau_multiple * tau_max {
-            format!(
-                ": the chain holds {:.0} autocorrelation times, but the tau estimates \
-                 still changed by more than {:.0} % between checks (common when the \
-                 chain moves between separate modes)",
-                span / tau_max,
-                100.0 * c.max_relative_change
-            )
-        } else {
-            String::new()
-        };
+    if let (RunStatus::StepCap, Some(rule)) = (status, &config.convergence) {
+        let found = state.last_check.map_or_else(
+            || "no check of the stopping rule had enough history yet".to_owned(),
+            |c| {
+                format!(
+                    "at the last check (step {}) the worst parameter had {:.0} effective \
+                     draws in the bulk and {:.0} in the tails (asked: {:.0}) and the largest \
+                     split R-hat was {:.3} (asked: at most {})",
+                    c.step,
+                    c.fewest_bulk,
+                    c.fewest_tail,
+                    rule.min_effective_draws,
+                    c.largest_rhat,
+                    rule.max_split_rhat
+                )
+            },
+        );
         warnings.push(format!(
-            "stopped at the step cap of {} steps before the autocorrelation rule was met \
-             (largest tau about {tau_max:.1} steps){why}; raise max_steps and resume",
+            "reached the step cap of {} steps before every parameter had enough effective \
+             draws: {found}; the intervals may be too narrow: raise max_steps and resume",
             config.max_steps
         ));
-    }
-    if let Some(c) = &config.convergence {
-        let span = state.step.saturating_sub(state.burn_in) as f64;
-        if tau_max > 0.0 && span < c.tau_multiple * tau_max {
-            warnings.push(format!(
-                "the chain after burn-in holds {:.0} autocorrelation times, fewer than {}; \
-                 tau and the credible intervals are not yet reliable",
-                span / tau_max,
-                c.tau_multiple
-            ));
-        }
     }
     if status == RunStatus::Cancelled {
         warnings.push("the run was cancelled; resume it from its checkpoint".into());
@@ -1144,10 +1236,11 @@ fn finish(
             stuck_walkers,
             tau,
             split_rhat: rhat,
-            ess_bulk: ess_b,
-            ess_tail: ess_t,
+            effective_draws_bulk: ess_b,
+            effective_draws_tail: ess_t,
             history_thin: h.thin,
             history_len: n_used,
+            last_check: state.last_check,
         },
         betas,
         swap_acceptance: state.ladder.acceptance(),

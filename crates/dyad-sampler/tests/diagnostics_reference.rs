@@ -168,7 +168,7 @@ fn diagnose_handles_interleaved_parameters() {
     assert_eq!(d.max_rhat(), d.parameters[1].rhat);
     // Serialises with the field names the report reads.
     let json = serde_json::to_value(&d).expect("serialise");
-    assert!(json["parameters"][1]["ess_bulk"].is_number());
+    assert!(json["parameters"][1]["effective_draws_bulk"].is_number());
 }
 
 #[test]

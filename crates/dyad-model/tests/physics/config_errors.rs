@@ -264,3 +264,26 @@ fn shipped_configurations_load() {
         );
     }
 }
+
+#[test]
+fn the_old_stopping_rule_key_names_its_replacement() {
+    expect_error(
+        &format!("{DATA}[sampler]\nautocorrelation_times = 50\n"),
+        "sampler.autocorrelation_times",
+        "effective_draws",
+    );
+}
+
+#[test]
+fn stopping_rule_bounds_are_checked() {
+    expect_error(
+        &format!("{DATA}[sampler]\nmax_split_rhat = 0.99\n"),
+        "sampler.max_split_rhat",
+        "above 1",
+    );
+    expect_error(
+        &format!("{DATA}[sampler]\neffective_draws = 0\n"),
+        "sampler.effective_draws",
+        "at least 1",
+    );
+}

@@ -1,0 +1,134 @@
+//! The stopping rule on synthetic chains whose effective draws are known.
+//!
+//! For a Gaussian AR(1) chain x_t = phi x_{t-1} + e_t the integrated
+//! autocorrelation time is tau = (1 + phi) / (1 - phi), so N draws hold
+//! N (1 - phi) / (1 + phi) effective draws (analytic; common practice, e.g.
+//! Sokal 1997, "Monte Carlo methods in statistical mechanics", sect. 3).
+//! The rule must refuse a chain whose analytic count is clearly below its
+//! threshold and accept one clearly above; the margins (a factor 1.5 either
+//! way) are several times the estimator's scatter (a few per cent for bulk
+//! draws on chains this long; Vehtari et al. 2021 sect. 3). Seeded, fixed.
+
+use dyad_sampler::diagnostics::DiagnosticsWorkspace;
+use dyad_sampler::{Convergence, ConvergenceCheck};
+use rand::SeedableRng;
+use rand_distr::{Distribution, StandardNormal};
+use rand_xoshiro::Xoshiro256PlusPlus;
+
+/// `n_walkers` independent stationary AR(1) chains, step-major.
+fn ar1(phi: f64, n_steps: usize, n_walkers: usize, seed: u64) -> Vec<f64> {
+    let mut rng = Xoshiro256PlusPlus::seed_from_u64(seed);
+    let innovation_sd = (1.0 - phi * phi).sqrt();
+    let mut state: Vec<f64> = (0..n_walkers)
+        .map(|_| StandardNormal.sample(&mut rng))
+        .collect();
+    let mut draws = Vec::with_capacity(n_steps * n_walkers);
+    for _ in 0..n_steps {
+        draws.extend_from_slice(&state);
+        for x in state.iter_mut() {
+            let e: f64 = StandardNormal.sample(&mut rng);
+            *x = phi * *x + innovation_sd * e;
+        }
+    }
+    draws
+}
+
+fn analytic_effective_draws(phi: f64, n_steps: usize, n_walkers: usize) -> f64 {
+    (n_steps * n_walkers) as f64 * (1.0 - phi) / (1.0 + phi)
+}
+
+/// Checks two parameters: a fast AR(1) and a slow one (the slow one decides).
+fn check(n_steps: usize, seed: u64) -> ConvergenceCheck {
+    let n_walkers = 32;
+    let fast = ar1(0.3, n_steps, n_walkers, seed);
+    let slow = ar1(0.95, n_steps, n_walkers, seed + 1);
+    let params = [fast, slow];
+    ConvergenceCheck::measure(
+        n_steps as u64,
+        n_steps as u64,
+        (n_steps, n_walkers, 2),
+        |p| params[p].as_slice(),
+        &mut DiagnosticsWorkspace::new(),
+    )
+}
+
+#[test]
+fn stops_once_the_slowest_parameter_has_enough_effective_draws_and_not_before() {
+    let rule = Convergence {
+        min_effective_draws: 2000.0,
+        max_split_rhat: 1.05,
+        min_check_interval: 1,
+    };
+    let (phi, n_walkers) = (0.95, 32);
+    // Steps at which the slow parameter has exactly the asked-for count.
+    let exact = rule.min_effective_draws * (1.0 + phi) / ((1.0 - phi) * n_walkers as f64);
+    let early = (exact / 1.5) as usize;
+    let late = (exact * 1.5) as usize;
+    for seed in [1, 7, 19] {
+        let before = check(early, seed);
+        assert!(
+            !before.met(&rule),
+            "seed {seed}: met at {early} steps ({:.0} analytic draws): {before:?}",
+            analytic_effective_draws(phi, early, n_walkers)
+        );
+        let after = check(late, seed);
+        assert!(
+            after.met(&rule),
+            "seed {seed}: not met at {late} steps ({:.0} analytic draws): {after:?}",
+            analytic_effective_draws(phi, late, n_walkers)
+        );
+        // The bulk count is the slow chain's analytic one (15 % is some 4
+        // standard errors of Geyer's estimator here).
+        let want = analytic_effective_draws(phi, late, n_walkers);
+        assert!(
+            (after.fewest_bulk / want - 1.0).abs() < 0.15,
+            "seed {seed}: bulk {} vs analytic {want}",
+            after.fewest_bulk
+        );
+        // The projection of the steps still needed lands near the exact count.
+        let needed = before.steps_needed(&rule, 0).expect("a rate") as f64 / 2.0;
+        assert!(
+            (needed / exact - 1.0).abs() < 0.3,
+            "seed {seed}: projected {needed} vs exact {exact}"
+        );
+    }
+}
+
+#[test]
+fn walkers_that_disagree_fail_the_rule() {
+    // Half the walkers sit 1 sd away from the others, each half white
+    // noise: 64 000 draws that would be independent within a walker, but
+    // split R-hat far above its bound (Vehtari et al. 2021 sect. 4: R-hat
+    // detects chains that have not mixed).
+    let (n_steps, n_walkers) = (2000, 32);
+    let mut draws = ar1(0.0, n_steps, n_walkers, 3);
+    for (i, x) in draws.iter_mut().enumerate() {
+        if i % n_walkers < n_walkers / 2 {
+            *x += 1.0;
+        }
+    }
+    let got = ConvergenceCheck::measure(
+        n_steps as u64,
+        n_steps as u64,
+        (n_steps, n_walkers, 1),
+        |_| draws.as_slice(),
+        &mut DiagnosticsWorkspace::new(),
+    );
+    let rule = Convergence::default();
+    assert!(got.largest_rhat > 1.1, "{got:?}");
+    assert!(!got.met(&rule));
+}
+
+#[test]
+fn a_parameter_that_never_moves_never_converges() {
+    let (n_steps, n_walkers) = (500, 16);
+    let stuck = vec![1.0; n_steps * n_walkers];
+    let got = ConvergenceCheck::measure(
+        n_steps as u64,
+        n_steps as u64,
+        (n_steps, n_walkers, 1),
+        |_| stuck.as_slice(),
+        &mut DiagnosticsWorkspace::new(),
+    );
+    assert!(!got.met(&Convergence::default()), "{got:?}");
+}
