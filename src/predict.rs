@@ -379,7 +379,14 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<()> {
             &(serde_json::to_string_pretty(&document)? + "\n"),
         )?;
         if model.mode() != FitMode::VelocitiesOnly {
-            let input = sky_input(&model, &draws, &split, &epochs, &per_mode);
+            let input = sky_input(
+                &model,
+                &draws,
+                &split,
+                &epochs,
+                &per_mode,
+                run.config.output.orbits_on_sky_plot,
+            );
             dyad_report::plot_sky(&partial.join("sky"), &input)?;
         }
         Ok(())
@@ -426,10 +433,11 @@ fn sky_input(
     split: &crate::modes::ModeSplit,
     epochs: &[f64],
     per_mode: &[Vec<ModePrediction>],
+    n_tracks: usize,
 ) -> dyad_report::SkyPlotInput {
     let dim = model.dim();
     let n = draws.table.n_draws();
-    let step = (n / 100).max(1);
+    let step = (n / n_tracks.max(1)).max(1);
     let mark_step = epochs.len().div_ceil(SKY_MARKS).max(1);
     let mut predictions = Vec::new();
     for (m, mode_predictions) in split.modes.iter().zip(per_mode) {
@@ -462,7 +470,7 @@ fn sky_input(
             .collect(),
         tracks: (0..n)
             .step_by(step)
-            .take(100)
+            .take(n_tracks)
             .filter_map(|d| orbit_track(model, &draws.sampled[d * dim..(d + 1) * dim], 240))
             .collect(),
         best_track: None,
