@@ -121,7 +121,7 @@ pub(crate) fn place_walkers<D: LogDensity + ?Sized>(
         }
         Start::Draws(draw) => {
             let out = (&mut pos[..], &mut lps[..], &mut lls[..]);
-            draw_walkers(density, out, rung, max_tries, rng, &mut |rng, x| {
+            draw_walkers(density, out, rung, max_tries, rng, &mut |rng, _, _, x| {
                 draw(rng, x)
             })?;
         }
@@ -171,49 +171,40 @@ fn place_in_balls<D: LogDensity + ?Sized>(
         }
         shrinks.push(density_at(density, centre).is_some());
     }
-    let (pos, lps, lls) = out;
-    for w in 0..lps.len() {
+    draw_walkers(density, out, rung, max_tries, rng, &mut |rng, w, t, x| {
         let b = w % centres.len();
-        let x = &mut pos[w * dim..(w + 1) * dim];
-        let found = (0..max_tries).find_map(|t| {
-            let factor = if shrinks[b] {
-                0.5f64.powi((t / SHRINK_EVERY) as i32)
-            } else {
-                1.0
-            };
-            for i in 0..dim {
-                let n: f64 = StandardNormal.sample(rng);
-                x[i] = centres[b][i] + factor * scales[b][i] * n;
-            }
-            density_at(density, x)
-        });
-        let (lp, ll) = found.ok_or(SamplerError::NoValidStart {
-            walker: w,
-            rung,
-            tries: max_tries,
-        })?;
-        lps[w] = lp;
-        lls[w] = ll;
-    }
-    Ok(())
+        let factor = if shrinks[b] {
+            0.5f64.powi((t / SHRINK_EVERY) as i32)
+        } else {
+            1.0
+        };
+        for (i, xi) in x.iter_mut().enumerate() {
+            let n: f64 = StandardNormal.sample(rng);
+            *xi = centres[b][i] + factor * scales[b][i] * n;
+        }
+    })
 }
+
+/// A start proposal: (generator, walker, failed tries so far, position to fill).
+type Proposal<'a> = dyn FnMut(&mut dyn RngCore, usize, usize, &mut [f64]) + 'a;
 
 /// Fills every walker's position with proposals until one has a finite
 /// density (at most `max_tries` per walker), recording its log prior and
-/// log likelihood.
+/// log likelihood. `propose` gets the walker and the number of its failed
+/// tries so far.
 fn draw_walkers<D: LogDensity + ?Sized>(
     density: &D,
     (pos, lps, lls): (&mut [f64], &mut [f64], &mut [f64]),
     rung: usize,
     max_tries: usize,
     rng: &mut dyn RngCore,
-    propose: &mut dyn FnMut(&mut dyn RngCore, &mut [f64]),
+    propose: &mut Proposal<'_>,
 ) -> Result<(), SamplerError> {
     let dim = density.dim();
     for w in 0..lps.len() {
         let x = &mut pos[w * dim..(w + 1) * dim];
-        let found = (0..max_tries).find_map(|_| {
-            propose(rng, x);
+        let found = (0..max_tries).find_map(|t| {
+            propose(rng, w, t, x);
             density_at(density, x)
         });
         let (lp, ll) = found.ok_or(SamplerError::NoValidStart {

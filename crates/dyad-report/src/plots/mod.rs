@@ -365,6 +365,33 @@ pub(crate) fn least_crowded_corner(
     best.1
 }
 
+/// Draws a 16-pixel legend of `entries` in the corner of `area` where it
+/// covers fewest of the points `pts` (pixels relative to the area), trying
+/// the top right first.
+pub(crate) fn draw_legend_where_free<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    entries: &[(LegendGlyph, String)],
+    pts: &[(i32, i32)],
+    plot: &'static str,
+) -> Result<(), ReportError> {
+    let size = 16.0;
+    let box_size = legend_size(area, entries, size, plot)?;
+    let (pw, ph) = area.dim_in_pixel();
+    let corner = least_crowded_corner(
+        pts,
+        box_size,
+        (pw as i32, ph as i32),
+        8,
+        &[
+            Corner::TopRight,
+            Corner::TopLeft,
+            Corner::BottomRight,
+            Corner::BottomLeft,
+        ],
+    );
+    draw_legend(area, entries, corner, 8, size, plot)
+}
+
 /// Draws a legend box of `entries` in a corner of `area` (pixel
 /// coordinates relative to the area), with `inset` pixels from the edges.
 pub(crate) fn draw_legend<DB: DrawingBackend>(

@@ -3,9 +3,8 @@
 //! residuals (observed minus best orbit) in a panel beneath each.
 
 use super::{
-    draw_legend, draw_marker, font, least_crowded_corner, legend_size, render, tick_formatter,
-    tint, widen, Corner, Figure, LegendGlyph, Marker, PlotFiles, PlotResultExt, BLUE, GREY,
-    MARKERS, SKY_BLUE, VERMILLION,
+    draw_legend_where_free, draw_marker, font, render, tick_formatter, tint, widen, Figure,
+    LegendGlyph, Marker, PlotFiles, PlotResultExt, BLUE, GREY, MARKERS, SKY_BLUE, VERMILLION,
 };
 use crate::error::ReportError;
 use plotters::coord::Shift;
@@ -339,22 +338,7 @@ impl SeparationFigure<'_> {
                 let (x, y) = top.backend_coord(&(p.t_year, p.sep_mas));
                 pts.push((x - px.start, y - py.start));
             }
-            let size = 16.0;
-            let box_size = legend_size(&plot, &legend, size, NAME)?;
-            let (pw, ph) = plot.dim_in_pixel();
-            let corner = least_crowded_corner(
-                &pts,
-                box_size,
-                (pw as i32, ph as i32),
-                8,
-                &[
-                    Corner::TopRight,
-                    Corner::TopLeft,
-                    Corner::BottomRight,
-                    Corner::BottomLeft,
-                ],
-            );
-            draw_legend(&plot, &legend, corner, 8, size, NAME)?;
+            draw_legend_where_free(&plot, &legend, &pts, NAME)?;
         }
         Ok(())
     }

@@ -1,9 +1,8 @@
 //! Radial-velocity curves folded on the period, with residuals.
 
 use super::{
-    draw_legend, draw_marker, font, least_crowded_corner, legend_size, render, tick_formatter,
-    widen, Corner, Figure, LegendGlyph, Marker, PlotFiles, PlotResultExt, BLUE, GREY, INK, MARKERS,
-    VERMILLION,
+    draw_legend_where_free, draw_marker, font, render, tick_formatter, widen, Figure, LegendGlyph,
+    Marker, PlotFiles, PlotResultExt, BLUE, GREY, INK, MARKERS, VERMILLION,
 };
 use crate::error::ReportError;
 use plotters::coord::Shift;
@@ -289,22 +288,7 @@ impl Figure for VelocityFigure<'_> {
             let (x, y) = top.backend_coord(&(ph, v));
             pts.push((x - px.start, y - py.start));
         }
-        let size = 16.0;
-        let box_size = legend_size(&plot, &legend, size, NAME)?;
-        let (pw, ph) = plot.dim_in_pixel();
-        let corner = least_crowded_corner(
-            &pts,
-            box_size,
-            (pw as i32, ph as i32),
-            8,
-            &[
-                Corner::TopRight,
-                Corner::TopLeft,
-                Corner::BottomRight,
-                Corner::BottomLeft,
-            ],
-        );
-        draw_legend(&plot, &legend, corner, 8, size, NAME)?;
+        draw_legend_where_free(&plot, &legend, &pts, NAME)?;
         Ok(())
     }
 }
