@@ -1,8 +1,9 @@
-//! The per-source astrometric error model and the orbital parallax, end to
-//! end on seeded invented systems ("Tallow Finch", simulated here): quoted
-//! errors 3x too small and 2x too large are found by the fitted scales, a
-//! 10-sigma outlier is down-weighted by Student-t residuals, and the true
-//! masses stay inside their 95 % intervals.
+//! The per-source astrometric error model's reporting, end to end on a
+//! seeded invented system ("Tallow Finch", simulated here): with errors as
+//! given a misquoted source earns a caution, and an unknown source in the
+//! configuration is refused. (That fitted scales find misquoted sources and
+//! Student t residuals down-weight an outlier, with the true masses inside
+//! their intervals, is checked in tests/honest_intervals.rs.)
 
 use std::fs;
 use std::path::Path;
@@ -12,7 +13,7 @@ use serde_json::Value;
 
 /// The invented system, both stars' velocities, polar astrometry whose
 /// epochs are taken in turn by the sources of `sources` (TOML list).
-fn scenario(seed: u64, count: usize, sources: &str, outliers: &str) -> String {
+fn scenario(seed: u64, count: usize, sources: &str) -> String {
     format!(
         r#"seed = {seed}
 [system]
@@ -38,7 +39,6 @@ count = {count}
 separation_error_mas = 2.0
 position_angle_error_deg = 0.25
 sources = {sources}
-{outliers}
 
 [velocities]
 file = "velocities.csv"
@@ -110,85 +110,11 @@ fn simulate_and_fit(scenario_text: &str, config_text: &str) -> (Value, Value) {
     (read("summary.json"), read("diagnostics.json"))
 }
 
-fn parameter<'a>(summary: &'a Value, name: &str) -> &'a Value {
-    summary["parameters"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|p| p["name"] == name)
-        .unwrap_or_else(|| panic!("summary lacks {name}"))
-}
-
-fn assert_inside_95(summary: &Value, name: &str, truth: f64) {
-    let p = parameter(summary, name);
-    let (lo, hi) = (p["q95"][0].as_f64().unwrap(), p["q95"][1].as_f64().unwrap());
-    assert!(
-        lo <= truth && truth <= hi,
-        "{name}: {truth} outside [{lo}, {hi}]"
-    );
-}
-
-#[test]
-fn fitted_error_scales_find_misquoted_sources() {
-    // "speckle" quotes errors 3x too small (true noise 3x quoted), "plates"
-    // 2x too large (true noise half), "imaging" as quoted; 20 epochs each.
-    let sources = r#"[{ name = "speckle", error_factor = 3.0 }, { name = "plates", error_factor = 0.5 }, { name = "imaging", error_factor = 1.0 }]"#;
-    let errors = r#"[astrometry_errors]
-scale = { shape = "log_uniform", min = 0.1, max = 10.0 }"#;
-    let (summary, diagnostics) = simulate_and_fit(&scenario(21, 60, sources, ""), &config(errors));
-    for (source, truth) in [("speckle", 3.0), ("plates", 0.5), ("imaging", 1.0)] {
-        let median = parameter(&summary, &format!("error_scale[{source}]"))["median"]
-            .as_f64()
-            .unwrap();
-        assert!(
-            (median / truth - 1.0).abs() < 0.3,
-            "{source}: fitted scale {median}, truth {truth}"
-        );
-    }
-    assert_inside_95(&summary, "mass_primary_msun", 1.2);
-    assert_inside_95(&summary, "mass_secondary_msun", 0.8);
-    // The summary says so.
-    let entries = summary["metadata"].to_string();
-    assert!(
-        entries.contains("source 'speckle': the fitted error scale"),
-        "{entries}"
-    );
-    let stats = diagnostics["error_model"]["astrometry_sources_at_map"]
-        .as_array()
-        .unwrap();
-    assert_eq!(stats.len(), 3);
-    assert!(stats.iter().all(|s| s["epochs"] == 20));
-}
-
-#[test]
-fn student_t_residuals_down_weight_a_ten_sigma_outlier() {
-    let sources = r#"[{ name = "speckle", error_factor = 1.0 }]"#;
-    let errors = r#"[astrometry_errors]
-distribution = "student_t"
-degrees_of_freedom = 4"#;
-    let (summary, diagnostics) = simulate_and_fit(
-        &scenario(
-            22,
-            24,
-            sources,
-            "outlier_epochs = [11]\noutlier_sigma = 10.0",
-        ),
-        &config(errors),
-    );
-    let stats = &diagnostics["error_model"]["astrometry_sources_at_map"][0];
-    // A 10-sigma residual (Q about 100) has weight (4 + 2) / (4 + 100) = 0.06.
-    let weight = stats["smallest_weight"].as_f64().unwrap();
-    assert!(weight < 0.15, "outlier weight {weight}");
-    assert_inside_95(&summary, "mass_primary_msun", 1.2);
-    assert_inside_95(&summary, "mass_secondary_msun", 0.8);
-    assert_inside_95(&summary, "eccentricity", 0.35);
-}
-
 #[test]
 fn errors_as_given_earn_a_caution_when_a_source_is_misquoted() {
     let sources =
         r#"[{ name = "speckle", error_factor = 3.0 }, { name = "imaging", error_factor = 1.0 }]"#;
-    let (summary, diagnostics) = simulate_and_fit(&scenario(23, 30, sources, ""), &config(""));
+    let (summary, diagnostics) = simulate_and_fit(&scenario(23, 30, sources), &config(""));
     let entries = summary["metadata"].to_string();
     assert!(
         entries.contains("source 'speckle': chi-square per degree of freedom"),
@@ -211,7 +137,7 @@ fn an_unknown_source_in_the_configuration_is_an_error_naming_the_key() {
     let dir = tempfile::tempdir().expect("temp dir");
     let path = dir.path();
     let sources = r#"[{ name = "speckle", error_factor = 1.0 }]"#;
-    fs::write(path.join("scenario.toml"), scenario(24, 10, sources, "")).unwrap();
+    fs::write(path.join("scenario.toml"), scenario(24, 10, sources)).unwrap();
     let errors = r#"[astrometry_errors.sources.micrometer]
 scale = { shape = "log_uniform", min = 0.1, max = 10.0 }"#;
     fs::write(path.join("run.toml"), config(errors)).unwrap();

@@ -179,10 +179,10 @@ pub struct RunConfig {
     /// Stop early when converged; `None` runs exactly `max_steps`.
     pub convergence: Option<Convergence>,
     /// Burn-in as a fixed share of the steps done: with `Some(f)` the run
-    /// discards exactly `round(f * steps)` steps, the stopping rule judges
-    /// the chain after that burn-in only, and a tempered run stops only once
-    /// that burn-in covers the ladder's adaptation. `None`: burn-in from the
-    /// autocorrelation time ([`Convergence::burn_in_taus`]).
+    /// discards exactly `round(f * steps)` steps, or, if a tempered ladder
+    /// adapts for longer, every step up to the ladder's freeze; the stopping
+    /// rule judges the chain after that burn-in only. `None`: burn-in from
+    /// the autocorrelation time ([`Convergence::burn_in_taus`]).
     pub burn_in_fraction: Option<f64>,
     /// Keep (stream to the sink) every `thin`-th step.
     pub thin: u64,
@@ -975,21 +975,18 @@ fn check_convergence(
     let h = &state.history;
     state.next_check = state.step + rule.min_check_interval.max(state.step / 10);
     // The rule judges the chain after the burn-in only: the start holds the
-    // approach to the typical set. With a fixed share that is the share
-    // (which must not reach back into the ladder's adaptation); without one
+    // approach to the typical set. With a fixed share that is the share, or
+    // the end of the ladder's adaptation (the history's start) if that is
+    // later: the ladder adapts during the share of `max_steps`, so a burn-in
+    // of the share of the steps done reaches the adaptation's end only at
+    // the cap, and a tempered run could never stop early. Without a share
     // it is the first half of the history (common practice; Vehtari et al.
     // 2021 sect. 3 likewise discard the first half of each chain).
     let first = match burn_in_fraction {
-        Some(f) => {
-            let burn_in = fraction_of(f, state.step);
-            if burn_in < h.start {
-                // The burn-in would keep steps of the ladder's adaptation.
-                return;
-            }
-            ((burn_in - h.start).div_ceil(h.thin) as usize).min(h.len)
-        }
+        Some(f) => (tempered_burn_in(f, state.step, h.start) - h.start).div_ceil(h.thin) as usize,
         None => h.len / 2,
-    };
+    }
+    .min(h.len);
     let kept = h.len - first;
     if kept < 8 {
         return;
@@ -1004,18 +1001,26 @@ fn check_convergence(
     if check.met(rule) {
         state.converged = true;
         state.burn_in = match burn_in_fraction {
-            Some(f) => fraction_of(f, state.step),
+            Some(f) => tempered_burn_in(f, state.step, h.start),
             None => h.start + first as u64 * h.thin,
         };
     }
     state.last_check = Some(check);
 }
 
+/// Burn-in of a run with a fixed share `fraction` after `steps` steps whose
+/// cold-chain history began at `history_start` (the end of a tempered
+/// ladder's adaptation; 0 untempered): the share, or the adaptation if it
+/// ends later.
+fn tempered_burn_in(fraction: f64, steps: u64, history_start: u64) -> u64 {
+    fraction_of(fraction, steps).max(history_start)
+}
+
 fn fallback_burn_in(state: &State, config: &RunConfig, estimator: &mut AutocorrEstimator) -> u64 {
     let h = &state.history;
     if let Some(f) = config.burn_in_fraction {
         // At the step cap of a tempered run this is the ladder's freeze.
-        return fraction_of(f, state.step).max(h.start);
+        return tempered_burn_in(f, state.step, h.start);
     }
     let run = state.step.saturating_sub(h.start);
     let mut tau_max = f64::NAN;
