@@ -1,6 +1,6 @@
 //! Positions on the sky and the line-of-sight velocity shape of an orbit.
 //!
-//! Conventions (DESIGN.md), all in one place:
+//! Conventions (docs/DESIGN.md), all in one place:
 //! - Offsets of the secondary from the primary: `ddec` towards North,
 //!   `dra` = dRA cos(Dec) towards East, in the unit of the semi-major axis.
 //! - Position angle theta from North through East: ddec = rho cos theta,
