@@ -60,6 +60,6 @@ pub mod residuals;
 pub mod simulate;
 pub mod start;
 pub mod terms;
-mod toml_walk;
+mod toml_input;
 
 pub use error::ModelError;
