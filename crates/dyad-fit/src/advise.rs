@@ -10,7 +10,6 @@ use anyhow::{bail, Context, Result};
 
 use dyad_model::data::{RelativePosition, Star};
 use dyad_model::likelihood::Model;
-use dyad_model::params::FitMode;
 use dyad_orbit::time::TimeScale;
 use dyad_plan::{
     calendar_month, expected_widths, widths_now, MonthRange, Observable, PlanSettings, Target,
@@ -197,7 +196,7 @@ fn target_names(model: &Model, period_rel_width: f64) -> Vec<(&'static str, &'st
     } else if has("mass_function_msun") {
         out.push(("mass_function_msun", "f(M)"));
     }
-    if model.mode() == FitMode::AstrometryOnly || period_rel_width > POORLY_KNOWN_PERIOD {
+    if !model.has_velocities() || period_rel_width > POORLY_KNOWN_PERIOD {
         out.push(("period_days", "P"));
     }
     out
@@ -277,7 +276,7 @@ pub fn advise(folder: &Path, o: &AdviseOptions) -> Result<()> {
         seed: o.seed,
     };
     let mut kinds = Vec::new();
-    if model.mode() != FitMode::VelocitiesOnly {
+    if model.has_astrometry() {
         let error = match o.position_error_mas {
             Some(e) => e,
             None => median_position_error(&model)

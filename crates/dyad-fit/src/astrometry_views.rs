@@ -6,9 +6,8 @@
 use std::f64::consts::PI;
 
 use dyad_model::data::RelativePosition;
-use dyad_model::derived::ResidualForm;
 use dyad_model::likelihood::{wrap_angle, Model};
-use dyad_model::params::FitMode;
+use dyad_model::residuals::ResidualForm;
 use dyad_orbit::{Orbit, SkyOffset, TimeScale};
 use dyad_report::stats::quantile_sorted;
 use dyad_report::{
@@ -95,7 +94,7 @@ fn anomaly_at(nu: f64, e: f64) -> (f64, f64) {
 /// The ascending node lies at argument of latitude nu + omega = 0, where
 /// the position angle equals Omega (docs/DESIGN.md Thiele-Innes formulas).
 pub fn sky_marks(model: &Model, x: &[f64]) -> Option<(LineOfNodes, (f64, f64))> {
-    if model.mode() == FitMode::VelocitiesOnly {
+    if !model.has_astrometry() {
         return None;
     }
     let o = model.layout().orbital(x)?;
@@ -109,7 +108,7 @@ pub fn sky_marks(model: &Model, x: &[f64]) -> Option<(LineOfNodes, (f64, f64))> 
     let nodes = LineOfNodes {
         ascending: at(-o.omega_rad),
         descending: at(PI - o.omega_rad),
-        ascending_known: model.mode() == FitMode::Joint,
+        ascending_known: !model.node_folded(),
     };
     let peri = orbit.sky_offset_from_sin_cos(0.0, 1.0);
     Some((nodes, (peri.dra, peri.ddec)))
@@ -165,7 +164,7 @@ pub fn separation_input(
 ) -> Option<SeparationPlotInput> {
     let dim = model.dim();
     let epochs = &model.dataset().astrometry;
-    if epochs.is_empty() || model.mode() == FitMode::VelocitiesOnly {
+    if epochs.is_empty() || !model.has_astrometry() {
         return None;
     }
     let year = |jd: f64| TimeScale::JulianYear.from_jd(jd);

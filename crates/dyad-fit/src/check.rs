@@ -10,7 +10,7 @@ use anyhow::Result;
 use dyad_model::config::RunConfig;
 use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
-use dyad_model::params::{FitMode, InclinationPrior, ScaledPrior};
+use dyad_model::params::{InclinationPrior, ScaledPrior};
 use dyad_model::prior::{Prior, PriorShape};
 
 use crate::plan::SamplingPlan;
@@ -91,7 +91,7 @@ pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
             describe_prior(&p.omega_rad, "rad"),
         ),
     ];
-    let mode = model.mode();
+    let (sky, line_of_sight) = (model.has_astrometry(), model.has_velocities());
     if layout.has_inclination() {
         let inc = match &p.inclination {
             InclinationPrior::Isotropic => "isotropic (uniform cos i)".to_owned(),
@@ -99,7 +99,7 @@ pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
         };
         lines.push(("inclination".to_owned(), inc));
     }
-    if mode != FitMode::VelocitiesOnly {
+    if sky {
         lines.push((
             "node (Omega)".to_owned(),
             describe_prior(&p.node_rad, "rad"),
@@ -113,10 +113,10 @@ pub fn prior_lines(model: &Model) -> Vec<(String, String)> {
             describe_prior(&p.parallax_mas, "mas"),
         ));
     }
-    if mode == FitMode::Joint {
+    if sky && line_of_sight {
         lines.push(("mass ratio q".to_owned(), describe_prior(&p.mass_ratio, "")));
     }
-    if mode == FitMode::VelocitiesOnly {
+    if !sky {
         if layout.has_velocities_of(Star::Primary) {
             lines.push(("K1".to_owned(), describe_prior(&p.k1_kms, "km/s")));
         }
@@ -142,13 +142,13 @@ pub fn describe(config: &RunConfig, model: &Model, plan: &SamplingPlan) -> Strin
     let data = model.dataset();
     let count = |star| data.velocities.iter().filter(|v| v.star == star).count();
     let mut out = String::new();
-    let mode = match model.mode() {
-        FitMode::Joint => "joint fit of relative astrometry and radial velocities",
-        FitMode::AstrometryOnly => "relative astrometry only (Omega folded to [0, 180) deg)",
-        FitMode::VelocitiesOnly if model.layout().has_inclination() => {
+    let mode = match (model.has_astrometry(), model.has_velocities()) {
+        (true, true) => "joint fit of relative astrometry and radial velocities",
+        (true, false) => "relative astrometry only (Omega folded to [0, 180) deg)",
+        (false, _) if model.layout().has_inclination() => {
             "radial velocities only, with an inclination known from elsewhere (no node or parallax)"
         }
-        FitMode::VelocitiesOnly => "radial velocities only (no inclination, node or parallax)",
+        (false, _) => "radial velocities only (no inclination, node or parallax)",
     };
     out.push_str(&format!("configuration: {}\n", config.file.display()));
     out.push_str(&format!("model: {mode}\n"));

@@ -7,7 +7,6 @@
 use dyad_model::astrometry_errors::ResidualDistribution;
 use dyad_model::config::RunConfig;
 use dyad_model::likelihood::Model;
-use dyad_model::params::FitMode;
 use dyad_orbit::laws;
 use dyad_report::PosteriorSummary;
 use serde_json::json;
@@ -21,7 +20,7 @@ const SCALE_CAUTION: (f64, f64) = (0.67, 1.5);
 pub fn error_model_description(model: &Model) -> String {
     let velocity = "per-instrument velocity jitter added in quadrature and a per-instrument \
                     velocity offset";
-    if model.mode() == FitMode::VelocitiesOnly {
+    if !model.has_astrometry() {
         return format!("Gaussian velocity errors as given; {velocity}");
     }
     let priors = model.layout().astrometry_error_priors();

@@ -10,7 +10,6 @@ use serde_json::json;
 use dyad_model::config::RunConfig;
 use dyad_model::data::{RelativePosition, Star};
 use dyad_model::likelihood::Model;
-use dyad_model::params::FitMode;
 use dyad_orbit::Orbit;
 use dyad_report::{
     DistributionPanel, ParameterInfo, PosteriorDraws, PosteriorSummary, RunMetadata,
@@ -39,7 +38,7 @@ pub struct Draws {
 }
 
 /// Plot label and kind of a quantity by its name.
-fn info_for(name: &str, unit: &str, mode: FitMode) -> ParameterInfo {
+fn info_for(name: &str, unit: &str, node_folded: bool) -> ParameterInfo {
     let label = match name {
         "period_days" | "period_years" => "P",
         "eccentricity" => "e",
@@ -72,11 +71,7 @@ fn info_for(name: &str, unit: &str, mode: FitMode) -> ParameterInfo {
             ParameterInfo::angle(name, unit, label, 360.0)
         }
         "node_deg" => {
-            let period = if mode == FitMode::AstrometryOnly {
-                180.0
-            } else {
-                360.0
-            };
+            let period = if node_folded { 180.0 } else { 360.0 };
             ParameterInfo::angle(name, unit, label, period)
         }
         _ => ParameterInfo::linear(name, unit, label),
@@ -111,7 +106,7 @@ pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws
     let derived_names = model.derived_names_units();
     let mut params: Vec<ParameterInfo> = derived_names
         .iter()
-        .map(|(n, u)| info_for(n, u, model.mode()))
+        .map(|(n, u)| info_for(n, u, model.node_folded()))
         .collect();
     params.extend(
         model
@@ -188,7 +183,7 @@ fn metadata(
         Some((p, e)) => format!("catalogue value {p} +- {e} mas used as a normal prior"),
         None => "no catalogue value: the parallax prior above".to_owned(),
     };
-    if model.mode() != FitMode::VelocitiesOnly {
+    if model.has_astrometry() {
         entries.push(("parallax used".to_owned(), parallax));
     }
     entries.push((
@@ -472,8 +467,8 @@ fn write_plots(
             .filter(|n| table.index_of(n).is_some())
             .collect()
     };
-    let pairs = match model.mode() {
-        FitMode::Joint => present(&[
+    let pairs = match (model.has_astrometry(), model.has_velocities()) {
+        (true, true) => present(&[
             "period_years",
             "eccentricity",
             "inclination_deg",
@@ -482,7 +477,7 @@ fn write_plots(
             "mass_primary_msun",
             "mass_secondary_msun",
         ]),
-        FitMode::AstrometryOnly => present(&[
+        (true, false) => present(&[
             "period_years",
             "eccentricity",
             "inclination_deg",
@@ -490,7 +485,7 @@ fn write_plots(
             "parallax_mas",
             "total_mass_msun",
         ]),
-        FitMode::VelocitiesOnly => present(&[
+        (false, _) => present(&[
             "period_days",
             "eccentricity",
             "k1_kms",
@@ -534,7 +529,7 @@ fn write_plots(
         )?;
     }
 
-    if model.mode() != FitMode::VelocitiesOnly {
+    if model.has_astrometry() {
         dyad_report::plot_sky(
             &plots.join("sky"),
             &sky_input(model, draws, map_x, sky_orbits, note),
@@ -544,7 +539,7 @@ fn write_plots(
             dyad_report::plot_separation_and_angle(&plots.join("separation-and-angle"), &input)?;
         }
     }
-    if model.mode() != FitMode::AstrometryOnly {
+    if model.has_velocities() {
         if let Some(input) = velocity_input(model, map_x, note) {
             dyad_report::plot_velocity_curves(&plots.join("velocities"), &input)?;
         }

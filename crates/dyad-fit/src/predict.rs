@@ -23,7 +23,6 @@ use serde_json::json;
 
 use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
-use dyad_model::params::FitMode;
 use dyad_orbit::time::TimeScale;
 use dyad_report::stats::{circular_mean, quantile_sorted, wrap_around};
 use dyad_report::SkyPrediction;
@@ -127,7 +126,7 @@ impl Quantity {
 /// The quantities the model can predict.
 fn quantities(model: &Model) -> Vec<Quantity> {
     let mut q = Vec::new();
-    if model.mode() != FitMode::VelocitiesOnly {
+    if model.has_astrometry() {
         q.extend([
             Quantity::Separation,
             Quantity::PositionAngle,
@@ -135,7 +134,7 @@ fn quantities(model: &Model) -> Vec<Quantity> {
             Quantity::Ddec,
         ]);
     }
-    if model.mode() != FitMode::AstrometryOnly {
+    if model.has_velocities() {
         if model.layout().has_velocities_of(Star::Primary) {
             q.push(Quantity::VelocityPrimary);
         }
@@ -378,7 +377,7 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<()> {
             &partial.join("predictions.json"),
             &(serde_json::to_string_pretty(&document)? + "\n"),
         )?;
-        if model.mode() != FitMode::VelocitiesOnly {
+        if model.has_astrometry() {
             let input = sky_input(
                 &model,
                 &draws,

@@ -31,11 +31,11 @@
 //! The default ("errors as given") samples nothing and leaves the
 //! likelihood exactly as it was: s = 1, j = 0, normal.
 
-use rand::Rng;
+use rand::RngCore;
 
 use crate::data::Dataset;
 use crate::error::ModelError;
-use crate::params::{Builder, ScaledPrior};
+use crate::params::{draw_within, Coord, LayoutBuilder, ScaledPrior};
 use crate::prior::Prior;
 
 /// The distribution of the astrometric residuals.
@@ -111,20 +111,31 @@ pub fn astrometry_sources(dataset: &Dataset) -> (Vec<String>, Vec<usize>) {
 }
 
 /// Where the error-model parameters sit in the sampled vector: a block of
-/// its own after the velocity jitters.
+/// its own after the velocity jitters (the term
+/// [`crate::terms::RelativeAstrometry`] declares it).
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct ErrorBlock {
-    scale: Vec<crate::params::Coord>,
-    jitter: Vec<crate::params::Coord>,
-    dof: Option<crate::params::Coord>,
+    scale: Vec<Coord>,
+    jitter: Vec<Coord>,
+    dof: Option<Coord>,
     priors: AstrometryErrorPriors,
 }
 
 impl ErrorBlock {
+    /// A block with no coordinates, before the layout declares them.
+    pub(crate) fn undeclared() -> Self {
+        Self {
+            scale: Vec::new(),
+            jitter: Vec::new(),
+            dof: None,
+            priors: AstrometryErrorPriors::as_given(0),
+        }
+    }
+
     /// Adds the sampled coordinates (`ln_error_scale[NAME]`,
     /// `ln_astrometric_jitter_mas[NAME]`, `ln_degrees_of_freedom`).
     pub(crate) fn new(
-        b: &mut Builder,
+        b: &mut LayoutBuilder,
         names: &[String],
         priors: &AstrometryErrorPriors,
     ) -> Result<Self, ModelError> {
@@ -190,11 +201,6 @@ impl ErrorBlock {
         })
     }
 
-    /// The priors the block was built with.
-    pub(crate) fn priors(&self) -> &AstrometryErrorPriors {
-        &self.priors
-    }
-
     /// Error scale of source `k`.
     #[inline]
     pub(crate) fn scale(&self, x: &[f64], k: usize) -> f64 {
@@ -214,7 +220,7 @@ impl ErrorBlock {
     }
 
     /// Calls `term` with each prior term of the block.
-    pub(crate) fn for_each_prior_term(&self, x: &[f64], term: &mut impl FnMut(&'static str, f64)) {
+    pub(crate) fn for_each_prior_term(&self, x: &[f64], term: &mut dyn FnMut(&'static str, f64)) {
         for (c, p) in self.scale.iter().zip(&self.priors.scale) {
             term("error scale", c.ln_prior(x, p));
         }
@@ -228,16 +234,11 @@ impl ErrorBlock {
     }
 
     /// Draws the block's coordinates from the prior.
-    pub(crate) fn sample_prior<R: Rng + ?Sized>(
-        &self,
-        rng: &mut R,
-        x: &mut [f64],
-        draw: &impl Fn(&mut R, &ScaledPrior, f64, f64) -> f64,
-    ) {
+    pub(crate) fn sample_prior(&self, rng: &mut dyn RngCore, x: &mut [f64]) {
         let coords = self.coords_and_priors();
         for (c, p) in coords {
             if let Some(i) = c.log_index() {
-                x[i] = draw(rng, p, f64::MIN_POSITIVE, f64::INFINITY).ln();
+                x[i] = draw_within(rng, p, f64::MIN_POSITIVE, f64::INFINITY).ln();
             }
         }
     }
@@ -258,7 +259,7 @@ impl ErrorBlock {
         }
     }
 
-    fn coords_and_priors(&self) -> Vec<(crate::params::Coord, &ScaledPrior)> {
+    fn coords_and_priors(&self) -> Vec<(Coord, &ScaledPrior)> {
         let mut out: Vec<_> = self
             .scale
             .iter()

@@ -4,10 +4,13 @@
 //! What it is for: the validated data types ([`data`]), loading them from CSV
 //! ([`load`]), the run configuration in TOML ([`config`]), priors on physical
 //! quantities ([`prior`]), the vector of sampled coordinates and its map to
-//! orbital elements ([`params`]), the joint log-likelihood of relative
-//! astrometry and radial velocities ([`likelihood`]), derived quantities such
-//! as the two masses ([`derived`]), a seeded starting-point search ([`start`])
-//! and the simulation of invented data sets ([`simulate`]).
+//! orbital elements ([`params`]), the data terms, one per kind of
+//! measurement, each with its parameters, log-likelihood block and derived
+//! quantities ([`terms`]: relative astrometry, radial velocities), the
+//! log-posterior ([`likelihood`]), derived quantities such as the two masses
+//! ([`derived`]), residuals and predictions ([`residuals`]), a seeded
+//! starting-point search ([`start`]) and the simulation of invented data
+//! sets ([`simulate`]).
 //!
 //! What it is not for: Keplerian kinematics (that is `dyad-orbit`), sampling
 //! (`dyad-sampler`, which this crate does not depend on) or reporting
@@ -53,8 +56,10 @@ pub mod likelihood;
 pub mod load;
 pub mod params;
 pub mod prior;
+pub mod residuals;
 pub mod simulate;
 pub mod start;
+pub mod terms;
 mod toml_input;
 
 pub use error::ModelError;

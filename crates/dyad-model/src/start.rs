@@ -34,7 +34,7 @@ use dyad_orbit::{laws, CampbellElements, Orbit, ThieleInnes};
 use crate::config::StartValues;
 use crate::data::{RelativePosition, Star};
 use crate::likelihood::Model;
-use crate::params::{FitMode, InclinationPrior, PhysicalParameters};
+use crate::params::{InclinationPrior, PhysicalParameters};
 
 /// Settings of the starting-point search.
 #[derive(Debug, Clone, PartialEq)]
@@ -239,7 +239,7 @@ fn linear_variants(model: &Model, base: &PhysicalParameters, out: &mut Vec<Vec<f
     let layout = model.layout();
     let priors = layout.priors();
     let o = &base.orbit;
-    let mode = model.mode();
+    let coverage = model.coverage();
     let (p, e, t) = (o.period_days, o.eccentricity, o.t_peri_jd);
     let median_err = {
         let mut errs: Vec<f64> = model
@@ -252,12 +252,12 @@ fn linear_variants(model: &Model, base: &PhysicalParameters, out: &mut Vec<Vec<f
         errs.get(errs.len() / 2).copied().unwrap_or(0.1)
     };
     let mut geometries = Vec::new();
-    if mode == FitMode::VelocitiesOnly {
+    if !coverage.sky_projection {
         geometries.push((None, o.omega_rad));
     } else if let Some(ti) = fit_thiele_innes(model, p, e, t) {
         let g = ti.to_campbell();
         geometries.push((Some(g), g.omega_rad));
-        if mode == FitMode::Joint {
+        if coverage.ascending_node {
             let mut flipped = g;
             flipped.omega_rad += std::f64::consts::PI;
             flipped.node_rad += std::f64::consts::PI;
@@ -305,68 +305,64 @@ fn linear_variants(model: &Model, base: &PhysicalParameters, out: &mut Vec<Vec<f
             }
             c = (c1, c2);
         }
-        match mode {
-            FitMode::VelocitiesOnly => {
-                // v1 = gamma - K1 shape, v2 = gamma + K2 shape.
-                cand.orbit.k1_kms = Some(clamp_into(-c.0, priors.k1_kms.support()).max(1e-6));
-                cand.orbit.k2_kms = Some(clamp_into(c.1, priors.k2_kms.support()).max(1e-6));
+        if !coverage.sky_projection {
+            // v1 = gamma - K1 shape, v2 = gamma + K2 shape.
+            cand.orbit.k1_kms = Some(clamp_into(-c.0, priors.k1_kms.support()).max(1e-6));
+            cand.orbit.k2_kms = Some(clamp_into(c.1, priors.k2_kms.support()).max(1e-6));
+        } else if coverage.line_of_sight() {
+            let g = match geometry {
+                Some(g) => g,
+                None => continue,
+            };
+            let (c1, c2) = c;
+            let both = layout.has_velocities_of(Star::Primary)
+                && layout.has_velocities_of(Star::Secondary);
+            if both && c2 - c1 > 0.0 && g.inc_rad.sin() > 1e-3 {
+                // K = c2 - c1 gives a_au, hence the orbital parallax.
+                let a_au = (c2 - c1) * p * 86_400.0 * (1.0 - e * e).sqrt()
+                    / (std::f64::consts::TAU * g.inc_rad.sin() * dyad_orbit::constants::AU_KM);
+                parallaxes.push(Some(g.a / a_au));
             }
-            FitMode::Joint => {
-                let g = match geometry {
-                    Some(g) => g,
-                    None => continue,
-                };
-                let (c1, c2) = c;
-                let both = layout.has_velocities_of(Star::Primary)
-                    && layout.has_velocities_of(Star::Secondary);
-                if both && c2 - c1 > 0.0 && g.inc_rad.sin() > 1e-3 {
-                    // K = c2 - c1 gives a_au, hence the orbital parallax.
-                    let a_au = (c2 - c1) * p * 86_400.0 * (1.0 - e * e).sqrt()
-                        / (std::f64::consts::TAU * g.inc_rad.sin() * dyad_orbit::constants::AU_KM);
-                    parallaxes.push(Some(g.a / a_au));
-                }
-                for plx in parallaxes {
-                    let Some(plx) = plx else { continue };
-                    let plx = clamp_into(plx, priors.parallax_mas.support());
-                    let a_au = g.a / plx;
-                    let m = clamp_into(
-                        laws::total_mass_msun(a_au, p),
-                        priors.total_mass_msun.support(),
-                    );
-                    let a_au = laws::semi_major_axis_au(m, p);
-                    let k = laws::relative_semi_amplitude_kms(a_au, p, e, g.inc_rad);
-                    let q = if both && c2 > 0.0 {
-                        -c1 / c2
-                    } else if layout.has_velocities_of(Star::Primary) && k > 0.0 {
-                        let r = (-c1 / k).clamp(0.0, 0.999);
-                        r / (1.0 - r)
-                    } else {
-                        let r = (1.0 - c2 / k.max(1e-300)).clamp(0.0, 0.999);
-                        r / (1.0 - r)
-                    };
-                    let mut v = cand.clone();
-                    v.orbit.parallax_mas = Some(plx);
-                    v.orbit.total_mass_msun = Some(m);
-                    v.orbit.mass_ratio = Some(clamp_into(q.max(0.0), priors.mass_ratio.support()));
-                    if let Ok(x) = layout.from_physical(&v) {
-                        out.push(x);
-                    }
-                }
-                continue;
-            }
-            FitMode::AstrometryOnly => {
-                let g = match geometry {
-                    Some(g) => g,
-                    None => continue,
-                };
-                let plx = clamp_into(o.parallax_mas.unwrap_or(1.0), priors.parallax_mas.support());
+            for plx in parallaxes {
+                let Some(plx) = plx else { continue };
+                let plx = clamp_into(plx, priors.parallax_mas.support());
+                let a_au = g.a / plx;
                 let m = clamp_into(
-                    laws::total_mass_from_angular(g.a, plx, p),
+                    laws::total_mass_msun(a_au, p),
                     priors.total_mass_msun.support(),
                 );
-                cand.orbit.parallax_mas = Some(plx);
-                cand.orbit.total_mass_msun = Some(m);
+                let a_au = laws::semi_major_axis_au(m, p);
+                let k = laws::relative_semi_amplitude_kms(a_au, p, e, g.inc_rad);
+                let q = if both && c2 > 0.0 {
+                    -c1 / c2
+                } else if layout.has_velocities_of(Star::Primary) && k > 0.0 {
+                    let r = (-c1 / k).clamp(0.0, 0.999);
+                    r / (1.0 - r)
+                } else {
+                    let r = (1.0 - c2 / k.max(1e-300)).clamp(0.0, 0.999);
+                    r / (1.0 - r)
+                };
+                let mut v = cand.clone();
+                v.orbit.parallax_mas = Some(plx);
+                v.orbit.total_mass_msun = Some(m);
+                v.orbit.mass_ratio = Some(clamp_into(q.max(0.0), priors.mass_ratio.support()));
+                if let Ok(x) = layout.from_physical(&v) {
+                    out.push(x);
+                }
             }
+            continue;
+        } else {
+            let g = match geometry {
+                Some(g) => g,
+                None => continue,
+            };
+            let plx = clamp_into(o.parallax_mas.unwrap_or(1.0), priors.parallax_mas.support());
+            let m = clamp_into(
+                laws::total_mass_from_angular(g.a, plx, p),
+                priors.total_mass_msun.support(),
+            );
+            cand.orbit.parallax_mas = Some(plx);
+            cand.orbit.total_mass_msun = Some(m);
         }
         if let Ok(x) = layout.from_physical(&cand) {
             out.push(x);

@@ -10,4 +10,5 @@ mod likelihood;
 mod modes;
 mod simulate;
 mod start;
+mod toy_term;
 mod velocities_only;
