@@ -24,8 +24,9 @@
 use std::collections::BTreeMap;
 use std::fs;
 use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 
-use anyhow::{anyhow, bail, Context, Result};
+use crate::error::{bail, Context, FitError, Result};
 use rand::{Rng, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
@@ -39,7 +40,7 @@ use dyad_sampler::{MemorySink, RunControl, RunStatus};
 use crate::density::Posterior;
 use crate::plan::SamplingPlan;
 use crate::run_folder::write_text;
-use crate::terminal::{say, say_raw};
+use crate::observer::Observer;
 
 /// The calibrated quantities: name in `Model::derived_names_units`, label.
 const TRACKED: [(&str, &str); 6] = [
@@ -145,10 +146,10 @@ impl Settings {
             Some(_) => bail!("{}, key 'output': must be a folder name", file.display()),
         };
         let observations = sub_table(&table, "observations", file)?.ok_or_else(|| {
-            anyhow!(
+            FitError::invalid(format!(
                 "{}: missing [observations] (the observing plan)",
                 file.display()
-            )
+            ))
         })?;
         for key in ["astrometry", "velocities"] {
             if let Some(toml::Value::Table(t)) = observations.get(key) {
@@ -249,11 +250,13 @@ fn truth_of(model: &Model, x: &[f64], name: &str) -> Result<Truth> {
     let p = model
         .layout()
         .to_physical(x)
-        .ok_or_else(|| anyhow!("a prior draw lies outside the model's domain"))?;
+        .ok_or_else(|| FitError::invalid("a prior draw lies outside the model's domain"))?;
     let o = &p.orbit;
     let need = |v: Option<f64>, what: &str| {
         v.ok_or_else(|| {
-            anyhow!("calibration needs astrometry and velocities of both stars ({what} missing)")
+            FitError::invalid(format!(
+                "calibration needs astrometry and velocities of both stars ({what} missing)"
+            ))
         })
     };
     let mut t = toml::Table::new();
@@ -512,7 +515,7 @@ pub fn chi_square_test(counts: &[usize], expected: &[f64]) -> Result<(f64, usize
         .map(|(&o, &e)| (o as f64 - e).powi(2) / e)
         .sum();
     let df = counts.len() - 1;
-    let dist = ChiSquared::new(df as f64).map_err(|e| anyhow!("chi-square: {e}"))?;
+    let dist = ChiSquared::new(df as f64).map_err(|e| FitError::invalid(format!("chi-square: {e}")))?;
     Ok((statistic, df, dist.sf(statistic)))
 }
 
@@ -793,8 +796,13 @@ fn summary_text(s: &Summary) -> String {
     t
 }
 
-/// `dyad calibrate SETTINGS`.
-pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()> {
+/// `dyad calibrate SETTINGS`: fits every simulated system (reporting each
+/// one done to `observer`), writes the verdicts and returns them.
+pub fn calibrate(
+    settings_path: &Path,
+    options: &CalibrateOptions,
+    observer: &mut (dyn Observer + Send),
+) -> Result<Calibration> {
     let text = fs::read_to_string(settings_path)
         .with_context(|| format!("reading {}", settings_path.display()))?;
     let mut settings = Settings::parse(&text, settings_path)?;
@@ -843,23 +851,21 @@ pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()>
         bail!("none of M1, M2, P, e, parallax, q is sampled by this model");
     }
 
-    let bar = indicatif::ProgressBar::new(settings.systems as u64);
-    bar.set_style(
-        indicatif::ProgressStyle::with_template(
-            "{bar:30.cyan/blue} {pos}/{len} systems  {elapsed_precise} (left ~{eta})",
-        )
-        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-    );
-    let outcomes: Vec<SystemOutcome> = (0..settings.systems)
+    let total = settings.systems;
+    let done = Mutex::new((0usize, observer));
+    let outcomes: Vec<SystemOutcome> = (0..total)
         .into_par_iter()
         .map(|i| {
             let out = calibrate_system(&settings, &template, &tracked, i)
-                .unwrap_or_else(|e| SystemOutcome::failed(i, format!("{e:#}")));
-            bar.inc(1);
+                .unwrap_or_else(|e| SystemOutcome::failed(i, chain_text(&e)));
+            if let Ok(mut guard) = done.lock() {
+                let (count, observer) = &mut *guard;
+                *count += 1;
+                observer.items_done(*count, total);
+            }
             out
         })
         .collect();
-    bar.finish_and_clear();
 
     let fitted: Vec<&SystemOutcome> = outcomes.iter().filter(|o| o.failure.is_none()).collect();
     if fitted.len() < 2 {
@@ -959,9 +965,34 @@ pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()>
             "tracked": tracked.iter().map(|&(_, l)| l).collect::<Vec<_>>(),
         }))?,
     )?;
-    say_raw!("{table}")?;
-    say!("wrote {}", settings.output.display())?;
-    Ok(())
+    Ok(Calibration {
+        folder: settings.output,
+        text: table,
+        all_pass: summary.all_pass,
+    })
+}
+
+/// What `dyad calibrate` found.
+#[derive(Debug, Clone)]
+pub struct Calibration {
+    /// The output folder (`calibration.txt`, `.json`, `ranks.csv`, the
+    /// rank histograms and every system's data).
+    pub folder: PathBuf,
+    /// The verdict table of `calibration.txt`.
+    pub text: String,
+    /// Whether every system was fitted and every quantity passes.
+    pub all_pass: bool,
+}
+
+/// An error and its causes on one line, as the terminal shows them.
+fn chain_text(e: &FitError) -> String {
+    let mut text = e.to_string();
+    let mut cause = std::error::Error::source(e);
+    while let Some(c) = cause {
+        text.push_str(&format!(": {c}"));
+        cause = c.source();
+    }
+    text
 }
 
 /// Whether derived quantity `k` takes different values under two prior

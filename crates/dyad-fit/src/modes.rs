@@ -199,7 +199,7 @@ pub fn period_modes(draws: &Draws) -> Vec<PeriodMode> {
 
 impl Draws {
     /// The draws labelled `mode` (1-based) in `labels`, in draw order.
-    pub fn of_mode(&self, labels: &[usize], mode: usize) -> anyhow::Result<Draws> {
+    pub fn of_mode(&self, labels: &[usize], mode: usize) -> crate::Result<Draws> {
         let dim = self.sampled.len() / self.table.n_draws().max(1);
         let np = self.table.n_params();
         let keep: Vec<usize> = (0..labels.len()).filter(|&d| labels[d] == mode).collect();

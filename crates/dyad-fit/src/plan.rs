@@ -5,7 +5,7 @@
 
 use std::time::Duration;
 
-use anyhow::{bail, Result};
+use crate::error::{bail, Result};
 
 use dyad_model::config::{RunConfig, Tempering};
 use dyad_model::likelihood::Model;
