@@ -226,7 +226,10 @@ fn run(cli: Cli) -> Result<()> {
         } => {
             let run = FitRun::resume(&run, max_steps)?;
             if let (false, Some(done)) = (quiet, run.steps_done()) {
-                note!("resuming at step {done} of {}", run.plan().sampler.max_steps);
+                note!(
+                    "resuming at step {done} of {}",
+                    run.plan().sampler.max_steps
+                );
             }
             sample(run, quiet)
         }
@@ -249,7 +252,8 @@ fn run(cli: Cli) -> Result<()> {
         } => {
             let options = PeriodOptions { output, overwrite };
             let mut terminal = Terminal::new(quiet);
-            let comparison = periods::compare(&config, &options, &mut terminal, &cancel_on_ctrl_c())?;
+            let comparison =
+                periods::compare(&config, &options, &mut terminal, &cancel_on_ctrl_c())?;
             if !quiet {
                 say!("{}", comparison.table)?;
                 say!("results in {}", comparison.folder.display())?;

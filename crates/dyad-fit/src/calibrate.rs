@@ -32,15 +32,17 @@ use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 use serde::Serialize;
 
+use dyad_common::quantile::{median_of_finite as median, quantile_sorted};
+use dyad_common::seed::mix64;
 use dyad_model::config::RunConfig;
 use dyad_model::likelihood::Model;
 use dyad_model::simulate::Scenario;
 use dyad_sampler::{MemorySink, RunControl, RunStatus};
 
 use crate::density::Posterior;
+use crate::observer::Observer;
 use crate::plan::SamplingPlan;
 use crate::run_folder::write_text;
-use crate::observer::Observer;
 
 /// The calibrated quantities: name in `Model::derived_names_units`, label.
 const TRACKED: [(&str, &str); 6] = [
@@ -218,16 +220,11 @@ impl Settings {
 /// generators") over the combined inputs, so that nearby inputs give
 /// unrelated seeds.
 fn system_seed(seed: u64, system: usize, stream: u64) -> u64 {
-    let mut z = seed
-        .wrapping_mul(0x9E37_79B9_7F4A_7C15)
+    let z = seed
+        .wrapping_mul(dyad_common::seed::GOLDEN_GAMMA)
         .wrapping_add((system as u64).wrapping_mul(0xD1B5_4A32_D192_ED03))
         .wrapping_add(stream.wrapping_mul(0x8CB9_2BA7_2F3D_8DD7));
-    for _ in 0..2 {
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^= z >> 31;
-    }
-    z
+    mix64(mix64(z))
 }
 
 const STREAM_TRUTH: u64 = 1;
@@ -515,20 +512,9 @@ pub fn chi_square_test(counts: &[usize], expected: &[f64]) -> Result<(f64, usize
         .map(|(&o, &e)| (o as f64 - e).powi(2) / e)
         .sum();
     let df = counts.len() - 1;
-    let dist = ChiSquared::new(df as f64).map_err(|e| FitError::invalid(format!("chi-square: {e}")))?;
+    let dist =
+        ChiSquared::new(df as f64).map_err(|e| FitError::invalid(format!("chi-square: {e}")))?;
     Ok((statistic, df, dist.sf(statistic)))
-}
-
-/// Quantile `p` of sorted values, linear between order statistics (type 7
-/// of Hyndman & Fan 1996, "Sample quantiles in statistical packages").
-pub fn quantile_sorted(sorted: &[f64], p: f64) -> f64 {
-    if sorted.is_empty() {
-        return f64::NAN;
-    }
-    let h = (sorted.len() - 1) as f64 * p.clamp(0.0, 1.0);
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(sorted.len() - 1);
-    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
 }
 
 /// Whether `truth` lies in the central `prob` interval of the sorted draws.
@@ -616,9 +602,10 @@ fn calibrate_system(
         RunStatus::StepCap => "step cap",
         RunStatus::Cancelled => "cancelled",
     };
-    let burn_in = result
-        .burn_in
-        .max((plan.burn_in_fraction * result.steps as f64).round() as u64);
+    let burn_in = result.burn_in.max(dyad_common::burn_in_steps(
+        plan.burn_in_fraction,
+        result.steps,
+    ));
     let table = sink.into_table();
     let first = table.first_after(burn_in);
     let nw = table.n_walkers;
@@ -731,12 +718,6 @@ struct Summary {
     parameters: Vec<ParameterVerdict>,
     failures: Vec<(usize, String)>,
     all_pass: bool,
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.retain(|x| x.is_finite());
-    v.sort_by(f64::total_cmp);
-    quantile_sorted(&v, 0.5)
 }
 
 fn summary_text(s: &Summary) -> String {
@@ -1058,13 +1039,8 @@ mod tests {
     }
 
     #[test]
-    fn quantiles_and_central_intervals() {
-        // Type-7 quantiles of 1..=5 (Hyndman & Fan 1996): median 3, 0.25 -> 2,
-        // 0.1 -> 1.4.
-        let v = [1.0, 2.0, 3.0, 4.0, 5.0];
-        assert_eq!(quantile_sorted(&v, 0.5), 3.0);
-        assert_eq!(quantile_sorted(&v, 0.25), 2.0);
-        assert!((quantile_sorted(&v, 0.1) - 1.4).abs() < 1e-12);
+    fn central_intervals() {
+        // Type-7 quantiles (Hyndman & Fan 1996) of an even grid on [0, 1].
         let grid: Vec<f64> = (0..=1000).map(|i| i as f64 / 1000.0).collect();
         assert!(inside_central(&grid, 0.5, 0.68));
         assert!(inside_central(&grid, 0.17, 0.68));

@@ -284,8 +284,7 @@ impl FitRun {
                 observer.message("searching for a starting point ...");
                 let start = starting_ensemble(&model, &config, &plan)?;
                 let density = Posterior::new(&model);
-                let result =
-                    sample_fresh(files, &density, &plan, &start, observer, cancel)?;
+                let result = sample_fresh(files, &density, &plan, &start, observer, cancel)?;
                 finish(files, &config, &model, &plan, result, observer)
             }
             (Some(files), Begin::Resume { .. }) => {
@@ -405,11 +404,13 @@ impl Outcome {
         };
         let evidence = evidence.map(serde_json::to_value).transpose()?;
         let mut warnings = result.warnings.clone();
-        let worst_rhat = result
-            .diagnostics
-            .split_rhat
-            .iter()
-            .fold(1.0f64, |a, &r| if r.is_nan() { a } else { a.max(r) });
+        let worst_rhat = result.diagnostics.split_rhat.iter().fold(1.0f64, |a, &r| {
+            if r.is_nan() {
+                a
+            } else {
+                a.max(r)
+            }
+        });
         let unconverged = result.status == RunStatus::StepCap || worst_rhat > 1.1;
         if !plan.tempered() && crate::plan::is_sparse(model) && unconverged {
             warnings.push(format!(
@@ -605,7 +606,9 @@ pub fn finish(
     let posterior = if result.status == RunStatus::Cancelled {
         None
     } else {
-        Some(crate::posterior::write_report(files, config, model, &outcome)?)
+        Some(crate::posterior::write_report(
+            files, config, model, &outcome,
+        )?)
     };
     Ok(FitResult {
         sampler: result,

@@ -5,6 +5,7 @@
 //!
 //! Modes are numbered from 1 in order of increasing period.
 
+use dyad_common::quantile::median_of_finite as median;
 use dyad_report::PosteriorDraws;
 
 use crate::posterior::Draws;
@@ -105,11 +106,6 @@ fn nearest_group(groups: &[[f64; 2]], l: f64) -> usize {
         .enumerate()
         .min_by(|a, b| distance(a.1).total_cmp(&distance(b.1)))
         .map_or(0, |(i, _)| i)
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    dyad_report::stats::quantile_sorted(&v, 0.5)
 }
 
 /// Splits the draws into period modes and labels every draw. `walkers` is

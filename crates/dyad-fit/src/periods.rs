@@ -175,8 +175,9 @@ fn discover_windows(
     cancel: &CancelFlag,
 ) -> Result<Vec<(f64, f64)>> {
     let (config, model) = (c.config, c.model);
-    observer
-        .message("no period windows configured: a tempered run over the whole prior finds them ...");
+    observer.message(
+        "no period windows configured: a tempered run over the whole prior finds them ...",
+    );
     let survey = tempered_run(c, &folder.join("survey"), None, observer, cancel)?;
     let posterior = survey
         .posterior

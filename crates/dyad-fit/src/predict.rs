@@ -21,11 +21,12 @@ use crate::error::{bail, Context, Result};
 use rayon::prelude::*;
 use serde_json::json;
 
+use dyad_common::quantile::quantile_sorted;
 use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
 use dyad_model::params::FitMode;
 use dyad_orbit::time::TimeScale;
-use dyad_report::stats::{circular_mean, quantile_sorted, wrap_around};
+use dyad_report::stats::{circular_mean, wrap_around};
 use dyad_report::SkyPrediction;
 
 use crate::fit::Outcome;

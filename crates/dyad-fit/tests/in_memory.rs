@@ -9,9 +9,7 @@
 use std::path::{Path, PathBuf};
 
 use dyad_fit::{CancelFlag, Dataset, FitRequest, Observer, Progress, RunConfig};
-use dyad_model::config::{
-    DataSettings, OutputSettings, PriorSettings, SamplerSettings, Tempering,
-};
+use dyad_model::config::{DataSettings, OutputSettings, PriorSettings, SamplerSettings, Tempering};
 use dyad_model::load::{load_astrometry_from_reader, load_velocities_from_reader};
 use dyad_model::simulate::Scenario;
 
@@ -153,7 +151,10 @@ fn a_simulated_system_from_arrays_gives_the_true_masses_in_its_95_per_cent_inter
     assert!(counter.started && counter.finished && counter.progress_reports > 0);
     assert!(!result.was_cancelled());
     assert_eq!(result.outcome.status, "converged", "{:?}", result.outcome);
-    assert!(result.evidence.is_none(), "an untempered run has no evidence");
+    assert!(
+        result.evidence.is_none(),
+        "an untempered run has no evidence"
+    );
     let posterior = result.posterior.expect("a finished run has a posterior");
     assert_eq!(posterior.modes.modes.len(), 1, "one period mode");
     for (name, truth) in [
@@ -173,7 +174,12 @@ fn a_simulated_system_from_arrays_gives_the_true_masses_in_its_95_per_cent_inter
     }
     // The draws are there to use directly: every one has a finite M1.
     let m1 = posterior.draws.table.index_of("mass_primary_msun").unwrap();
-    assert!(posterior.draws.table.column(m1).iter().all(|v| v.is_finite()));
+    assert!(posterior
+        .draws
+        .table
+        .column(m1)
+        .iter()
+        .all(|v| v.is_finite()));
 }
 
 #[test]
@@ -183,7 +189,9 @@ fn a_run_cancelled_before_it_starts_stops_at_once_without_a_posterior() {
     let run = FitRequest::from_arrays(settings(), simulated_dataset())
         .prepare()
         .expect("a valid request");
-    let result = run.run(&mut dyad_fit::Silent, &cancel).expect("the run returns");
+    let result = run
+        .run(&mut dyad_fit::Silent, &cancel)
+        .expect("the run returns");
     assert!(result.was_cancelled());
     assert!(result.posterior.is_none());
     assert!(result.sampler.steps < 30_000);
