@@ -1,4 +1,6 @@
-//! The `dyad` command line: parses arguments and wires the crates together.
+//! The `dyad` command line: parses arguments, runs the workflows of
+//! `dyad-fit`, shows their progress and results, and turns errors into exit
+//! codes.
 //!
 //! Commands: `fit` (sample a posterior into a run folder), `resume`
 //! (continue a stopped run), `report` (redraw summaries and plots), `check`
@@ -11,10 +13,22 @@
 // table of the configuration file, not a documentation link.
 #![allow(rustdoc::broken_intra_doc_links)]
 
-use dyad_fit::{advise, calibrate, check, fit, periods, posterior, predict, terminal};
+mod progress;
+mod terminal;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
+use std::sync::OnceLock;
+use std::time::Duration;
+
+use dyad_fit::advise::{self, AdviseOptions};
+use dyad_fit::calibrate::{self, CalibrateOptions};
+use dyad_fit::periods::{self, PeriodOptions};
+use dyad_fit::predict::{self, PredictOptions};
+use dyad_fit::{CancelFlag, FitRequest, FitRun};
+
+use crate::progress::Terminal;
+use crate::terminal::{note, say, say_raw};
 
 use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
@@ -192,35 +206,60 @@ fn run(cli: Cli) -> Result<()> {
             overwrite,
             quiet,
             checkpoint_seconds,
-        } => fit::fit(
-            &config,
-            &fit::FitOptions {
-                output,
-                overwrite,
-                quiet,
-                checkpoint_seconds,
-            },
-        ),
+        } => {
+            let request = FitRequest::from_file(&config)?;
+            let folder = output.unwrap_or_else(|| request.config.output.folder.clone());
+            let mut request = request.into_folder(folder, overwrite);
+            if let Some(seconds) = checkpoint_seconds {
+                request = request.checkpoint_interval(Duration::from_secs_f64(seconds.max(0.0)));
+            }
+            let run = request.prepare()?;
+            if !quiet {
+                note!("{}", run.description());
+            }
+            sample(run, quiet)
+        }
         Command::Resume {
             run,
             max_steps,
             quiet,
-        } => fit::resume(&run, max_steps, quiet),
-        Command::Report { run } => posterior::report(&run),
-        Command::Check { config } => check::check(&config),
+        } => {
+            let run = FitRun::resume(&run, max_steps)?;
+            if let (false, Some(done)) = (quiet, run.steps_done()) {
+                note!(
+                    "resuming at step {done} of {}",
+                    run.plan().sampler.max_steps
+                );
+            }
+            sample(run, quiet)
+        }
+        Command::Report { run } => {
+            let report = dyad_fit::posterior::report(&run)?;
+            say!("{}", report.text)?;
+            say!("results in {}", run.display())?;
+            Ok(())
+        }
+        Command::Check { config } => {
+            say!("{}", dyad_fit::check::check(&config)?)?;
+            say!("configuration and data are valid.")?;
+            Ok(())
+        }
         Command::Periods {
             config,
             output,
             overwrite,
             quiet,
-        } => periods::periods(
-            &config,
-            &periods::PeriodOptions {
-                output,
-                overwrite,
-                quiet,
-            },
-        ),
+        } => {
+            let options = PeriodOptions { output, overwrite };
+            let mut terminal = Terminal::new(quiet);
+            let comparison =
+                periods::compare(&config, &options, &mut terminal, &cancel_on_ctrl_c())?;
+            if !quiet {
+                say!("{}", comparison.table)?;
+                say!("results in {}", comparison.folder.display())?;
+            }
+            Ok(())
+        }
         Command::Predict {
             run,
             epochs,
@@ -228,16 +267,27 @@ fn run(cli: Cli) -> Result<()> {
             to,
             step,
             scale,
-        } => predict::predict(
-            &run,
-            &predict::PredictOptions {
+        } => {
+            let options = PredictOptions {
                 epochs,
                 from,
                 to,
                 step,
                 scale,
-            },
-        ),
+            };
+            let prediction = predict::predict(&run, &options)?;
+            say_raw!("{}", prediction.text)?;
+            let folder = prediction.folder.display();
+            match prediction.number {
+                2 => say!("wrote {folder} (the earlier prediction-1 is kept)"),
+                k if k > 2 => say!(
+                    "wrote {folder} (the earlier prediction-1 to prediction-{} are kept)",
+                    k - 1
+                ),
+                _ => say!("wrote {folder}"),
+            }?;
+            Ok(())
+        }
         Command::Advise {
             run,
             from,
@@ -251,9 +301,8 @@ fn run(cli: Cli) -> Result<()> {
             outcomes,
             seed,
             overwrite,
-        } => advise::advise(
-            &run,
-            &advise::AdviseOptions {
+        } => {
+            let options = AdviseOptions {
                 from,
                 to,
                 step,
@@ -265,21 +314,32 @@ fn run(cli: Cli) -> Result<()> {
                 outcomes,
                 seed,
                 overwrite,
-            },
-        ),
+            };
+            let advice = advise::advise(&run, &options)?;
+            say_raw!("{}", advice.text)?;
+            say!(
+                "table: {}\nplot: {}",
+                advice.table.display(),
+                advice.plot.display()
+            )?;
+            Ok(())
+        }
         Command::Calibrate {
             settings,
             systems,
             output,
             overwrite,
-        } => calibrate::calibrate(
-            &settings,
-            &calibrate::CalibrateOptions {
+        } => {
+            let options = CalibrateOptions {
                 systems,
                 output,
                 overwrite,
-            },
-        ),
+            };
+            let calibration = calibrate::calibrate(&settings, &options, &mut Terminal::new(false))?;
+            say_raw!("{}", calibration.text)?;
+            say!("wrote {}", calibration.folder.display())?;
+            Ok(())
+        }
         Command::Simulate {
             scenario,
             overwrite,
@@ -287,11 +347,43 @@ fn run(cli: Cli) -> Result<()> {
             let written = dyad_model::simulate::run_scenario_file(&scenario, overwrite)
                 .with_context(|| format!("simulating {}", scenario.display()))?;
             for file in written {
-                terminal::write_line(&format!("wrote {}", file.display()))?;
+                say!("wrote {}", file.display())?;
             }
             Ok(())
         }
     }
+}
+
+/// Samples a prepared run with a progress line, then says how it ended.
+fn sample(run: FitRun, quiet: bool) -> Result<()> {
+    let max_steps = run.plan().sampler.max_steps;
+    let result = run.run(&mut Terminal::new(quiet), &cancel_on_ctrl_c())?;
+    let folder = result.folder.clone().unwrap_or_default();
+    if result.was_cancelled() {
+        note!(
+            "stopped at step {} of {max_steps}; the state is checkpointed: continue with `dyad resume {}`",
+            result.sampler.steps,
+            folder.display()
+        );
+    } else if let (false, Some(posterior)) = (quiet, &result.posterior) {
+        say!("{}", posterior.text)?;
+        say!("results in {}", folder.display())?;
+    }
+    Ok(())
+}
+
+/// A cancel flag set by Ctrl-C. The handler is installed once per process;
+/// if that fails the run simply cannot be interrupted cleanly, which is no
+/// reason to refuse to run.
+fn cancel_on_ctrl_c() -> CancelFlag {
+    static FLAG: OnceLock<CancelFlag> = OnceLock::new();
+    FLAG.get_or_init(|| {
+        let flag = CancelFlag::new();
+        let handler_flag = flag.clone();
+        let _ = ctrlc::set_handler(move || handler_flag.cancel());
+        flag
+    })
+    .clone()
 }
 
 fn main() -> ExitCode {
@@ -301,7 +393,7 @@ fn main() -> ExitCode {
         // has what it wanted, so end quietly and successfully.
         Err(e) if terminal::is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
-            terminal::write_note(&format!("error: {e:#}"));
+            note!("error: {e:#}");
             ExitCode::FAILURE
         }
     }

@@ -4,9 +4,9 @@
 //! and a plot into the run folder.
 
 use std::fmt::Write as _;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
-use anyhow::{bail, Context, Result};
+use crate::error::{bail, Context, Result};
 
 use dyad_model::data::{RelativePosition, Star};
 use dyad_model::likelihood::Model;
@@ -209,8 +209,8 @@ struct Kind {
     values: Vec<dyad_plan::DateValue>,
 }
 
-/// `dyad advise`.
-pub fn advise(folder: &Path, o: &AdviseOptions) -> Result<()> {
+/// `dyad advise`: writes the advice into the run folder and returns it.
+pub fn advise(folder: &Path, o: &AdviseOptions) -> Result<Advice> {
     let scale = TimeScale::from_column_name(&o.scale).with_context(|| {
         format!(
             "unknown time scale '{}': use jyear, byear, jd or mjd",
@@ -352,13 +352,53 @@ pub fn advise(folder: &Path, o: &AdviseOptions) -> Result<()> {
             .collect(),
     };
     let files = dyad_report::plot_next_epoch_advice(&out_plot, &input)?;
-    print!("{text}");
-    println!(
-        "table: {}\nplot: {}",
-        out_csv.display(),
-        files.png.display()
-    );
-    Ok(())
+    Ok(Advice {
+        text,
+        table: out_csv,
+        plot: files.png,
+        draws: n,
+        targets: targets.iter().map(|(name, _)| name.to_string()).collect(),
+        widths_now: now,
+        kinds: kinds
+            .into_iter()
+            .map(|k| MeasurementAdvice {
+                measurement: k.key,
+                label: k.label,
+                dates: k.values,
+            })
+            .collect(),
+    })
+}
+
+/// What `dyad advise` found and wrote.
+#[derive(Debug, Clone)]
+pub struct Advice {
+    /// The ranked table of `next-epoch-advice.txt`.
+    pub text: String,
+    /// `next-epoch-advice.csv`.
+    pub table: PathBuf,
+    /// The plot (PNG; an SVG lies beside it).
+    pub plot: PathBuf,
+    /// Posterior draws reweighted.
+    pub draws: usize,
+    /// The quantities whose intervals the advice tries to shrink (derived
+    /// quantity names).
+    pub targets: Vec<String>,
+    /// Their 68 per cent interval widths now, in the order of `targets`.
+    pub widths_now: Vec<f64>,
+    /// Per kind of measurement, the expected widths at every candidate date.
+    pub kinds: Vec<MeasurementAdvice>,
+}
+
+/// The advice for one kind of measurement.
+#[derive(Debug, Clone)]
+pub struct MeasurementAdvice {
+    /// Key of the measurement (`position`, `velocity_primary`, ...).
+    pub measurement: String,
+    /// Plain description, with the assumed error.
+    pub label: String,
+    /// Expected widths per candidate date.
+    pub dates: Vec<dyad_plan::DateValue>,
 }
 
 /// Effective draws below this make a date's figure unreliable.

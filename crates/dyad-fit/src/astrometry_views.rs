@@ -5,11 +5,11 @@
 
 use std::f64::consts::PI;
 
+use dyad_common::quantile::quantile_sorted;
 use dyad_model::data::RelativePosition;
 use dyad_model::likelihood::{wrap_angle, Model};
 use dyad_model::residuals::ResidualForm;
 use dyad_orbit::{Orbit, SkyOffset, TimeScale};
-use dyad_report::stats::quantile_sorted;
 use dyad_report::{
     AstrometryResidualRow, Band, LineOfNodes, MeasuredForm, PolarPoint, SeparationPlotInput,
 };

@@ -24,22 +24,25 @@
 use std::collections::BTreeMap;
 use std::fs;
 use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 
-use anyhow::{anyhow, bail, Context, Result};
+use crate::error::{bail, Context, FitError, Result};
 use rand::{Rng, SeedableRng};
 use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 use serde::Serialize;
 
+use dyad_common::quantile::{median_of_finite as median, quantile_sorted};
+use dyad_common::seed::mix64;
 use dyad_model::config::RunConfig;
 use dyad_model::likelihood::Model;
 use dyad_model::simulate::Scenario;
 use dyad_sampler::{MemorySink, RunControl, RunStatus};
 
 use crate::density::Posterior;
+use crate::observer::Observer;
 use crate::plan::SamplingPlan;
 use crate::run_folder::write_text;
-use crate::terminal::{say, say_raw};
 
 /// The calibrated quantities: name in `Model::derived_names_units`, label.
 const TRACKED: [(&str, &str); 6] = [
@@ -145,10 +148,10 @@ impl Settings {
             Some(_) => bail!("{}, key 'output': must be a folder name", file.display()),
         };
         let observations = sub_table(&table, "observations", file)?.ok_or_else(|| {
-            anyhow!(
+            FitError::invalid(format!(
                 "{}: missing [observations] (the observing plan)",
                 file.display()
-            )
+            ))
         })?;
         for key in ["astrometry", "velocities"] {
             if let Some(toml::Value::Table(t)) = observations.get(key) {
@@ -217,16 +220,11 @@ impl Settings {
 /// generators") over the combined inputs, so that nearby inputs give
 /// unrelated seeds.
 fn system_seed(seed: u64, system: usize, stream: u64) -> u64 {
-    let mut z = seed
-        .wrapping_mul(0x9E37_79B9_7F4A_7C15)
+    let z = seed
+        .wrapping_mul(dyad_common::seed::GOLDEN_GAMMA)
         .wrapping_add((system as u64).wrapping_mul(0xD1B5_4A32_D192_ED03))
         .wrapping_add(stream.wrapping_mul(0x8CB9_2BA7_2F3D_8DD7));
-    for _ in 0..2 {
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^= z >> 31;
-    }
-    z
+    mix64(mix64(z))
 }
 
 const STREAM_TRUTH: u64 = 1;
@@ -249,11 +247,13 @@ fn truth_of(model: &Model, x: &[f64], name: &str) -> Result<Truth> {
     let p = model
         .layout()
         .to_physical(x)
-        .ok_or_else(|| anyhow!("a prior draw lies outside the model's domain"))?;
+        .ok_or_else(|| FitError::invalid("a prior draw lies outside the model's domain"))?;
     let o = &p.orbit;
     let need = |v: Option<f64>, what: &str| {
         v.ok_or_else(|| {
-            anyhow!("calibration needs astrometry and velocities of both stars ({what} missing)")
+            FitError::invalid(format!(
+                "calibration needs astrometry and velocities of both stars ({what} missing)"
+            ))
         })
     };
     let mut t = toml::Table::new();
@@ -512,20 +512,9 @@ pub fn chi_square_test(counts: &[usize], expected: &[f64]) -> Result<(f64, usize
         .map(|(&o, &e)| (o as f64 - e).powi(2) / e)
         .sum();
     let df = counts.len() - 1;
-    let dist = ChiSquared::new(df as f64).map_err(|e| anyhow!("chi-square: {e}"))?;
+    let dist =
+        ChiSquared::new(df as f64).map_err(|e| FitError::invalid(format!("chi-square: {e}")))?;
     Ok((statistic, df, dist.sf(statistic)))
-}
-
-/// Quantile `p` of sorted values, linear between order statistics (type 7
-/// of Hyndman & Fan 1996, "Sample quantiles in statistical packages").
-pub fn quantile_sorted(sorted: &[f64], p: f64) -> f64 {
-    if sorted.is_empty() {
-        return f64::NAN;
-    }
-    let h = (sorted.len() - 1) as f64 * p.clamp(0.0, 1.0);
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(sorted.len() - 1);
-    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
 }
 
 /// Whether `truth` lies in the central `prob` interval of the sorted draws.
@@ -613,9 +602,10 @@ fn calibrate_system(
         RunStatus::StepCap => "step cap",
         RunStatus::Cancelled => "cancelled",
     };
-    let burn_in = result
-        .burn_in
-        .max((plan.burn_in_fraction * result.steps as f64).round() as u64);
+    let burn_in = result.burn_in.max(dyad_common::burn_in_steps(
+        plan.burn_in_fraction,
+        result.steps,
+    ));
     let table = sink.into_table();
     let first = table.first_after(burn_in);
     let nw = table.n_walkers;
@@ -730,12 +720,6 @@ struct Summary {
     all_pass: bool,
 }
 
-fn median(mut v: Vec<f64>) -> f64 {
-    v.retain(|x| x.is_finite());
-    v.sort_by(f64::total_cmp);
-    quantile_sorted(&v, 0.5)
-}
-
 fn summary_text(s: &Summary) -> String {
     use std::fmt::Write as _;
     let mut t = String::new();
@@ -793,8 +777,13 @@ fn summary_text(s: &Summary) -> String {
     t
 }
 
-/// `dyad calibrate SETTINGS`.
-pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()> {
+/// `dyad calibrate SETTINGS`: fits every simulated system (reporting each
+/// one done to `observer`), writes the verdicts and returns them.
+pub fn calibrate(
+    settings_path: &Path,
+    options: &CalibrateOptions,
+    observer: &mut (dyn Observer + Send),
+) -> Result<Calibration> {
     let text = fs::read_to_string(settings_path)
         .with_context(|| format!("reading {}", settings_path.display()))?;
     let mut settings = Settings::parse(&text, settings_path)?;
@@ -843,23 +832,21 @@ pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()>
         bail!("none of M1, M2, P, e, parallax, q is sampled by this model");
     }
 
-    let bar = indicatif::ProgressBar::new(settings.systems as u64);
-    bar.set_style(
-        indicatif::ProgressStyle::with_template(
-            "{bar:30.cyan/blue} {pos}/{len} systems  {elapsed_precise} (left ~{eta})",
-        )
-        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-    );
-    let outcomes: Vec<SystemOutcome> = (0..settings.systems)
+    let total = settings.systems;
+    let done = Mutex::new((0usize, observer));
+    let outcomes: Vec<SystemOutcome> = (0..total)
         .into_par_iter()
         .map(|i| {
             let out = calibrate_system(&settings, &template, &tracked, i)
-                .unwrap_or_else(|e| SystemOutcome::failed(i, format!("{e:#}")));
-            bar.inc(1);
+                .unwrap_or_else(|e| SystemOutcome::failed(i, chain_text(&e)));
+            if let Ok(mut guard) = done.lock() {
+                let (count, observer) = &mut *guard;
+                *count += 1;
+                observer.items_done(*count, total);
+            }
             out
         })
         .collect();
-    bar.finish_and_clear();
 
     let fitted: Vec<&SystemOutcome> = outcomes.iter().filter(|o| o.failure.is_none()).collect();
     if fitted.len() < 2 {
@@ -959,9 +946,34 @@ pub fn calibrate(settings_path: &Path, options: &CalibrateOptions) -> Result<()>
             "tracked": tracked.iter().map(|&(_, l)| l).collect::<Vec<_>>(),
         }))?,
     )?;
-    say_raw!("{table}")?;
-    say!("wrote {}", settings.output.display())?;
-    Ok(())
+    Ok(Calibration {
+        folder: settings.output,
+        text: table,
+        all_pass: summary.all_pass,
+    })
+}
+
+/// What `dyad calibrate` found.
+#[derive(Debug, Clone)]
+pub struct Calibration {
+    /// The output folder (`calibration.txt`, `.json`, `ranks.csv`, the
+    /// rank histograms and every system's data).
+    pub folder: PathBuf,
+    /// The verdict table of `calibration.txt`.
+    pub text: String,
+    /// Whether every system was fitted and every quantity passes.
+    pub all_pass: bool,
+}
+
+/// An error and its causes on one line, as the terminal shows them.
+fn chain_text(e: &FitError) -> String {
+    let mut text = e.to_string();
+    let mut cause = std::error::Error::source(e);
+    while let Some(c) = cause {
+        text.push_str(&format!(": {c}"));
+        cause = c.source();
+    }
+    text
 }
 
 /// Whether derived quantity `k` takes different values under two prior
@@ -1027,13 +1039,8 @@ mod tests {
     }
 
     #[test]
-    fn quantiles_and_central_intervals() {
-        // Type-7 quantiles of 1..=5 (Hyndman & Fan 1996): median 3, 0.25 -> 2,
-        // 0.1 -> 1.4.
-        let v = [1.0, 2.0, 3.0, 4.0, 5.0];
-        assert_eq!(quantile_sorted(&v, 0.5), 3.0);
-        assert_eq!(quantile_sorted(&v, 0.25), 2.0);
-        assert!((quantile_sorted(&v, 0.1) - 1.4).abs() < 1e-12);
+    fn central_intervals() {
+        // Type-7 quantiles (Hyndman & Fan 1996) of an even grid on [0, 1].
         let grid: Vec<f64> = (0..=1000).map(|i| i as f64 / 1000.0).collect();
         assert!(inside_central(&grid, 0.5, 0.68));
         assert!(inside_central(&grid, 0.17, 0.68));

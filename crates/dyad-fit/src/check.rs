@@ -1,11 +1,11 @@
 //! `dyad check CONFIG`: validate a configuration and its data and say what a
-//! fit would do, without sampling. Also the run description printed at the
-//! start of `dyad fit` and kept in the report.
+//! fit would do, without sampling. Also the run description shown at the
+//! start of `dyad fit`, and the prior descriptions kept in the report.
 
 use std::f64::consts::PI;
 use std::path::Path;
 
-use anyhow::Result;
+use crate::error::Result;
 
 use dyad_model::config::RunConfig;
 use dyad_model::data::Star;
@@ -14,16 +14,14 @@ use dyad_model::params::{InclinationPrior, ScaledPrior};
 use dyad_model::prior::{Prior, PriorShape};
 
 use crate::plan::SamplingPlan;
-use crate::terminal::say;
 
-/// `dyad check CONFIG`.
-pub fn check(config_path: &Path) -> Result<()> {
+/// `dyad check CONFIG`: validates the configuration and its data and
+/// returns what a fit would do ([`describe`]).
+pub fn check(config_path: &Path) -> Result<String> {
     let config = RunConfig::load(config_path)?;
     let model = Model::from_config(&config)?;
     let plan = SamplingPlan::new(&config, &model, None)?;
-    say!("{}", describe(&config, &model, &plan))?;
-    say!("configuration and data are valid.")?;
-    Ok(())
+    Ok(describe(&config, &model, &plan))
 }
 
 /// A prior on an angle held in radians (a default, or one given in

@@ -173,7 +173,7 @@ fn median_and_sigma(mut v: Vec<f64>) -> Option<(f64, f64)> {
         return None;
     }
     v.sort_by(f64::total_cmp);
-    let q = |p: f64| crate::calibrate::quantile_sorted(&v, p);
+    let q = |p: f64| dyad_common::quantile::quantile_sorted(&v, p);
     Some((q(0.5), 0.5 * (q(0.84) - q(0.16))))
 }
 

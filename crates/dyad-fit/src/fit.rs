@@ -1,38 +1,358 @@
-//! `dyad fit`, `dyad resume`: run the sampler on a configuration, with a
-//! progress bar, Ctrl-C handling and checkpoints, then write the report.
+//! Fitting a posterior: a [`FitRequest`] (a configuration and its data,
+//! from files or in-memory arrays) is prepared into a [`FitRun`] (the model,
+//! the sampling plan and, for a run folder, the folder with its provenance),
+//! which samples — reporting progress to an [`Observer`], stopping when a
+//! [`CancelFlag`] is set, checkpointing on the way — and returns a
+//! [`FitResult`]: the sampler's result and diagnostics, the evidence of a
+//! tempered run, and the posterior draws with their summary and period
+//! modes, ready to use without reading any file back.
+//!
+//! `dyad fit` and `dyad resume` are this module with a progress line.
 
 use std::fs;
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::Arc;
+use std::time::Duration;
 
-use anyhow::{bail, Context, Result};
 use serde::{Deserialize, Serialize};
 
 use dyad_model::config::RunConfig;
+use dyad_model::data::Dataset;
 use dyad_model::likelihood::Model;
 use dyad_model::start::{find_starting_points, StartSettings};
-use dyad_sampler::evidence::estimate_evidence;
+use dyad_sampler::evidence::{estimate_evidence, EvidenceEstimates};
 use dyad_sampler::{
-    CheckpointConfig, FileSink, LogDensity, RunControl, RunDiagnostics, RunResult, RunStatus, Start,
+    CheckpointConfig, FileSink, LogDensity, MemorySink, RunControl, RunResult, RunStatus,
+    SampleSink, Start,
 };
 
 use crate::density::Posterior;
+use crate::error::{bail, Context, Result};
+use crate::observer::{CancelFlag, Observer};
 use crate::plan::{checkpoint_every, SamplingPlan};
-use crate::progress::ProgressBar;
-use crate::run_folder::{write_text, ExistingRun, Provenance, RunFiles};
-use crate::terminal::note;
+use crate::posterior::PosteriorReport;
+use crate::run_folder::{read_window, write_text, ExistingRun, Provenance, RunFiles};
 
-/// Options of `dyad fit`.
-pub struct FitOptions {
-    /// Run folder instead of the configuration's `[output] folder`.
-    pub output: Option<PathBuf>,
-    /// Reuse a run folder that holds files already.
-    pub overwrite: bool,
-    /// No progress bar.
-    pub quiet: bool,
-    /// Seconds between checkpoints (default: a few).
-    pub checkpoint_seconds: Option<f64>,
+/// Where a fit keeps its draws.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Storage {
+    /// A run folder: the chain file, checkpoints, the provenance record and
+    /// the report (summaries, samples table, plots) are written there, and
+    /// the run can be resumed and reported again later.
+    Folder {
+        /// The run folder.
+        folder: PathBuf,
+        /// Reuse a folder that holds files already.
+        overwrite: bool,
+        /// Wall time between checkpoints.
+        checkpoint_interval: Duration,
+    },
+    /// Draws kept in memory only; nothing is written (a fit that cannot be
+    /// resumed, for callers that use the results directly).
+    Memory,
+}
+
+/// What to fit: a run configuration and its data.
+#[derive(Debug, Clone)]
+pub struct FitRequest {
+    /// The run configuration (priors, error model, sampler settings, ...).
+    pub config: RunConfig,
+    /// The configuration's text, for the run folder's verbatim copy (none
+    /// for a configuration built in memory).
+    config_text: Option<String>,
+    /// In-memory measurements used instead of the configuration's `[data]`
+    /// files.
+    dataset: Option<Dataset>,
+    /// Where the draws go.
+    pub storage: Storage,
+}
+
+impl FitRequest {
+    /// The configuration file at `path` and the data files it names, into
+    /// its `[output] folder`.
+    pub fn from_file(path: &Path) -> Result<Self> {
+        let config_text =
+            fs::read_to_string(path).with_context(|| format!("reading {}", path.display()))?;
+        let config = RunConfig::from_toml_str(&config_text, path)?;
+        let storage = Storage::Folder {
+            folder: config.output.folder.clone(),
+            overwrite: false,
+            checkpoint_interval: checkpoint_every(),
+        };
+        Ok(Self {
+            config,
+            config_text: Some(config_text),
+            dataset: None,
+            storage,
+        })
+    }
+
+    /// Measurements given as arrays (internal units, see
+    /// `dyad_model::data`) under the priors, error model and sampler
+    /// settings of `config` (whose `[data]` file names are ignored; its
+    /// catalogue parallax and reference epoch apply). The draws stay in
+    /// memory.
+    pub fn from_arrays(config: RunConfig, dataset: Dataset) -> Self {
+        Self {
+            config,
+            config_text: None,
+            dataset: Some(dataset),
+            storage: Storage::Memory,
+        }
+    }
+
+    /// Writes the run into `folder` instead (reusing a folder with files in
+    /// it only if `overwrite`). Only a request read from a file can: the
+    /// folder keeps a copy of the configuration to resume and report from.
+    pub fn into_folder(mut self, folder: impl Into<PathBuf>, overwrite: bool) -> Self {
+        let checkpoint_interval = match self.storage {
+            Storage::Folder {
+                checkpoint_interval,
+                ..
+            } => checkpoint_interval,
+            Storage::Memory => checkpoint_every(),
+        };
+        self.storage = Storage::Folder {
+            folder: folder.into(),
+            overwrite,
+            checkpoint_interval,
+        };
+        self
+    }
+
+    /// Checkpoints every `interval` of wall time (run folders only).
+    pub fn checkpoint_interval(mut self, interval: Duration) -> Self {
+        if let Storage::Folder {
+            checkpoint_interval,
+            ..
+        } = &mut self.storage
+        {
+            *checkpoint_interval = interval;
+        }
+        self
+    }
+
+    /// Builds the model and the sampling plan and, for a run folder, makes
+    /// (or reuses) the folder and records the provenance. Nothing is
+    /// sampled yet.
+    pub fn prepare(self) -> Result<FitRun> {
+        let model = match &self.dataset {
+            Some(data) => Model::new(data.clone(), &self.config.model_priors(data)?)?,
+            None => Model::from_config(&self.config)?,
+        };
+        match self.storage {
+            Storage::Memory => {
+                let plan = SamplingPlan::new(&self.config, &model, None)?;
+                Ok(FitRun::new(self.config, model, plan, None, Begin::Fresh))
+            }
+            Storage::Folder {
+                folder,
+                overwrite,
+                checkpoint_interval,
+            } => {
+                let (Some(text), None) = (&self.config_text, &self.dataset) else {
+                    bail!(
+                        "a run folder needs a configuration file naming its data files \
+                         (in-memory data are fitted in memory)"
+                    );
+                };
+                let files = open_run_folder(&folder, &self.config, text, overwrite)?;
+                let checkpoint = CheckpointConfig::new(files.checkpoint(), checkpoint_interval);
+                let plan = SamplingPlan::new(&self.config, &model, Some(checkpoint))?;
+                Ok(FitRun::new(
+                    self.config,
+                    model,
+                    plan,
+                    Some(files),
+                    Begin::Fresh,
+                ))
+            }
+        }
+    }
+}
+
+/// How a run begins.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Begin {
+    /// From a starting ensemble found by the starting-point search.
+    Fresh,
+    /// From the checkpoint, `done` steps in.
+    Resume { done: u64 },
+}
+
+/// A prepared fit, ready to sample.
+pub struct FitRun {
+    config: RunConfig,
+    model: Model,
+    plan: SamplingPlan,
+    files: Option<RunFiles>,
+    begin: Begin,
+}
+
+impl FitRun {
+    fn new(
+        config: RunConfig,
+        model: Model,
+        plan: SamplingPlan,
+        files: Option<RunFiles>,
+        begin: Begin,
+    ) -> Self {
+        Self {
+            config,
+            model,
+            plan,
+            files,
+            begin,
+        }
+    }
+
+    /// A stopped run of the folder `folder`, to continue from its
+    /// checkpoint up to its total step count (or the new total
+    /// `max_steps`), bit-identically to a run that was never interrupted.
+    pub fn resume(folder: &Path, max_steps: Option<u64>) -> Result<Self> {
+        let run = ExistingRun::open(folder)?;
+        let model = Model::from_config(&run.config)?;
+        let checkpoint = CheckpointConfig::new(run.files.checkpoint(), checkpoint_every());
+        let mut plan = SamplingPlan::new(&run.config, &model, Some(checkpoint))?;
+        if let Some(total) = max_steps {
+            plan.sampler.max_steps = total;
+        }
+        if !run.files.checkpoint().is_file() {
+            bail!("{} has no checkpoint to resume from", folder.display());
+        }
+        let done = dyad_sampler::checkpoint_step(run.files.checkpoint())?;
+        if done >= plan.sampler.max_steps {
+            bail!(
+                "the run has done {done} of its {} steps already; give a larger total with --max-steps",
+                plan.sampler.max_steps
+            );
+        }
+        Ok(Self::new(
+            run.config,
+            model,
+            plan,
+            Some(run.files),
+            Begin::Resume { done },
+        ))
+    }
+
+    /// The configuration.
+    pub fn config(&self) -> &RunConfig {
+        &self.config
+    }
+
+    /// The model (data, priors, parameter layout).
+    pub fn model(&self) -> &Model {
+        &self.model
+    }
+
+    /// The sampler settings and why they were chosen.
+    pub fn plan(&self) -> &SamplingPlan {
+        &self.plan
+    }
+
+    /// The run folder, when the run has one.
+    pub fn folder(&self) -> Option<&Path> {
+        self.files.as_ref().map(|f| f.folder.as_path())
+    }
+
+    /// Steps done before this session, for a resumed run.
+    pub fn steps_done(&self) -> Option<u64> {
+        match self.begin {
+            Begin::Fresh => None,
+            Begin::Resume { done } => Some(done),
+        }
+    }
+
+    /// The data, model, priors and sampler plan in a few lines.
+    pub fn description(&self) -> String {
+        crate::check::describe(&self.config, &self.model, &self.plan)
+    }
+
+    /// Samples the posterior and, for a run folder, writes the outcome and
+    /// (unless cancelled) the report.
+    pub fn run(self, observer: &mut dyn Observer, cancel: &CancelFlag) -> Result<FitResult> {
+        let Self {
+            config,
+            model,
+            plan,
+            files,
+            begin,
+        } = self;
+        let dim = model.dim();
+        match (&files, begin) {
+            (Some(files), Begin::Fresh) => {
+                observer.message("searching for a starting point ...");
+                let start = starting_ensemble(&model, &config, &plan)?;
+                let density = Posterior::new(&model);
+                let result = sample_fresh(files, &density, &plan, &start, observer, cancel)?;
+                finish(files, &config, &model, &plan, result, observer)
+            }
+            (Some(files), Begin::Resume { .. }) => {
+                // A run restricted to a period window (made by `dyad
+                // periods`) resumes with the same restriction.
+                let density = match read_window(files)? {
+                    Some((lo, hi)) => Posterior::in_period_window(&model, lo, hi)
+                        .context("the run's period window is not valid for this model")?,
+                    None => Posterior::new(&model),
+                };
+                let mut sink = FileSink::open(files.chain())?;
+                let result = run_sampler(&density, &plan, &mut sink, None, observer, cancel)?;
+                finish(files, &config, &model, &plan, result, observer)
+            }
+            (None, _) => {
+                observer.message("searching for a starting point ...");
+                let start = starting_ensemble(&model, &config, &plan)?;
+                let density = Posterior::new(&model);
+                let mut sink = MemorySink::for_samples(dim, plan.sampler.n_walkers);
+                let result =
+                    run_sampler(&density, &plan, &mut sink, Some(&start), observer, cancel)?;
+                let evidence = typed_evidence(&result)?;
+                let outcome = Outcome::from_result(&result, evidence.as_ref(), &model, &plan)?;
+                report_warnings(&outcome, observer);
+                let posterior = if result.status == RunStatus::Cancelled {
+                    None
+                } else {
+                    let draws = crate::posterior::draws_from_table(
+                        &sink.into_table(),
+                        &model,
+                        result.burn_in,
+                    )?;
+                    Some(PosteriorReport::of_draws(draws)?)
+                };
+                Ok(FitResult {
+                    sampler: result,
+                    outcome,
+                    evidence,
+                    posterior,
+                    folder: None,
+                })
+            }
+        }
+    }
+}
+
+/// What a fit gives.
+#[derive(Debug)]
+pub struct FitResult {
+    /// The sampler's result: status, steps, burn-in, cold-chain
+    /// diagnostics, temperatures, final positions.
+    pub sampler: RunResult,
+    /// How the run ended, as `outcome.json` records it.
+    pub outcome: Outcome,
+    /// Evidence estimates of a tempered run that was not stopped.
+    pub evidence: Option<EvidenceEstimates>,
+    /// The posterior after burn-in (none when the run was stopped by the
+    /// user: resume it first).
+    pub posterior: Option<PosteriorReport>,
+    /// The run folder, if the run has one.
+    pub folder: Option<PathBuf>,
+}
+
+impl FitResult {
+    /// Whether the run was stopped before it finished (resumable).
+    pub fn was_cancelled(&self) -> bool {
+        self.sampler.status == RunStatus::Cancelled
+    }
 }
 
 /// How a run ended, written to `outcome.json` when the sampler returns.
@@ -58,26 +378,53 @@ pub struct Outcome {
     pub evidence: Option<serde_json::Value>,
 }
 
+/// The evidence of a tempered run that was not stopped.
+fn typed_evidence(result: &RunResult) -> Result<Option<EvidenceEstimates>> {
+    match &result.tempered {
+        Some(t) if result.status != RunStatus::Cancelled => Ok(Some(
+            estimate_evidence(t).context("estimating the evidence from the tempered chains")?,
+        )),
+        _ => Ok(None),
+    }
+}
+
 impl Outcome {
-    fn from_result(result: &RunResult) -> Result<Self> {
+    /// The record of `result`, with the sparse-orbit warning of an
+    /// untempered run that did not converge.
+    fn from_result(
+        result: &RunResult,
+        evidence: Option<&EvidenceEstimates>,
+        model: &Model,
+        plan: &SamplingPlan,
+    ) -> Result<Self> {
         let status = match result.status {
             RunStatus::Converged => "converged",
             RunStatus::StepCap => "step cap",
             RunStatus::Cancelled => "stopped by the user",
         };
-        let evidence = match &result.tempered {
-            Some(t) if result.status != RunStatus::Cancelled => Some(serde_json::to_value(
-                estimate_evidence(t).context("estimating the evidence from the tempered chains")?,
-            )?),
-            _ => None,
-        };
+        let evidence = evidence.map(serde_json::to_value).transpose()?;
+        let mut warnings = result.warnings.clone();
+        let worst_rhat = result.diagnostics.split_rhat.iter().fold(1.0f64, |a, &r| {
+            if r.is_nan() {
+                a
+            } else {
+                a.max(r)
+            }
+        });
+        let unconverged = result.status == RunStatus::StepCap || worst_rhat > 1.1;
+        if !plan.tempered() && crate::plan::is_sparse(model) && unconverged {
+            warnings.push(format!(
+                "largest split R-hat {worst_rhat:.2}; {}",
+                crate::plan::temper_hint(model)
+            ));
+        }
         Ok(Self {
             status: status.to_owned(),
             steps: result.steps,
             // The sampler discards exactly the configured share of the steps.
             burn_in: result.burn_in,
-            warnings: result.warnings.clone(),
-            diagnostics: diagnostics_json(&result.diagnostics)?,
+            warnings,
+            diagnostics: serde_json::to_value(&result.diagnostics)?,
             inverse_temperatures: result.betas.clone(),
             swap_acceptance_rate: result.swap_acceptance.clone(),
             evidence,
@@ -101,20 +448,6 @@ impl Outcome {
     fn write(&self, files: &RunFiles) -> Result<()> {
         write_text(&files.outcome(), &serde_json::to_string_pretty(self)?)
     }
-}
-
-fn diagnostics_json(d: &RunDiagnostics) -> Result<serde_json::Value> {
-    Ok(serde_json::to_value(d)?)
-}
-
-/// A cancel flag set by Ctrl-C (installed once per process).
-fn ctrl_c_flag() -> Arc<AtomicBool> {
-    let flag = Arc::new(AtomicBool::new(false));
-    let handler_flag = flag.clone();
-    // Installing fails only if a handler exists already; the run then simply
-    // cannot be interrupted cleanly, which is no reason to refuse to run.
-    let _ = ctrlc::set_handler(move || handler_flag.store(true, Ordering::SeqCst));
-    flag
 }
 
 /// The starting ensemble: a small ball around the best point the search
@@ -178,25 +511,29 @@ fn ball_scale(model: &Model, x: &[f64]) -> Vec<f64> {
         .collect()
 }
 
+/// Runs (or, without `start`, resumes) the sampler, passing its progress
+/// reports to `observer`.
 fn run_sampler(
     density: &dyn LogDensity,
     plan: &SamplingPlan,
-    sink: &mut FileSink,
+    sink: &mut dyn SampleSink,
     start: Option<&Start<'_>>,
-    quiet: bool,
+    observer: &mut dyn Observer,
+    cancel: &CancelFlag,
 ) -> Result<RunResult> {
-    let cancel = ctrl_c_flag();
-    let mut bar = ProgressBar::new(plan.sampler.max_steps, quiet);
-    let mut on_progress = |p: &dyad_sampler::Progress| bar.update(p);
-    let control = RunControl {
-        progress: Some(&mut on_progress),
-        cancel: Some(cancel),
+    observer.sampling_started(plan.sampler.max_steps);
+    let result = {
+        let mut on_progress = |p: &dyad_sampler::Progress| observer.sampling_progress(p);
+        let control = RunControl {
+            progress: Some(&mut on_progress),
+            cancel: Some(cancel.shared()),
+        };
+        match start {
+            Some(start) => dyad_sampler::run(density, &plan.sampler, start, sink, control),
+            None => dyad_sampler::resume(density, &plan.sampler, sink, control),
+        }
     };
-    let result = match start {
-        Some(start) => dyad_sampler::run(density, &plan.sampler, start, sink, control),
-        None => dyad_sampler::resume(density, &plan.sampler, sink, control),
-    };
-    bar.finish();
+    observer.sampling_finished();
     Ok(result?)
 }
 
@@ -238,112 +575,46 @@ pub fn sample_fresh(
     density: &Posterior<'_>,
     plan: &SamplingPlan,
     start: &Start<'_>,
-    quiet: bool,
+    observer: &mut dyn Observer,
+    cancel: &CancelFlag,
 ) -> Result<RunResult> {
     let dim = density.dim();
     let mut sink = FileSink::create_samples(files.chain(), dim, plan.sampler.n_walkers)?;
-    run_sampler(density, plan, &mut sink, Some(start), quiet)
+    run_sampler(density, plan, &mut sink, Some(start), observer, cancel)
 }
 
-/// `dyad fit CONFIG`.
-pub fn fit(config_path: &Path, options: &FitOptions) -> Result<()> {
-    let config_text = fs::read_to_string(config_path)
-        .with_context(|| format!("reading {}", config_path.display()))?;
-    let config = RunConfig::from_toml_str(&config_text, config_path)?;
-    let model = Model::from_config(&config)?;
-    let folder = options
-        .output
-        .clone()
-        .unwrap_or_else(|| config.output.folder.clone());
-    let files = open_run_folder(&folder, &config, &config_text, options.overwrite)?;
-    let mut checkpoint = checkpoint_config(&files);
-    if let Some(seconds) = options.checkpoint_seconds {
-        checkpoint.interval = std::time::Duration::from_secs_f64(seconds.max(0.0));
+fn report_warnings(outcome: &Outcome, observer: &mut dyn Observer) {
+    for w in &outcome.warnings {
+        observer.warning(w);
     }
-    let plan = SamplingPlan::new(&config, &model, Some(checkpoint))?;
-    if !options.quiet {
-        note!("{}", crate::check::describe(&config, &model, &plan));
-        note!("searching for a starting point ...");
-    }
-    let start = starting_ensemble(&model, &config, &plan)?;
-    let density = Posterior::new(&model);
-    let result = sample_fresh(&files, &density, &plan, &start, options.quiet)?;
-    finish(&files, &config, &model, &plan, &result, options.quiet)
 }
 
-/// `dyad resume RUN`: continues a stopped run up to its total step count
-/// (or a new total), bit-identically to a run that was never interrupted.
-pub fn resume(folder: &Path, max_steps: Option<u64>, quiet: bool) -> Result<()> {
-    let run = ExistingRun::open(folder)?;
-    let model = Model::from_config(&run.config)?;
-    let mut plan = SamplingPlan::new(&run.config, &model, Some(checkpoint_config(&run.files)))?;
-    if let Some(total) = max_steps {
-        plan.sampler.max_steps = total;
-    }
-    if !run.files.checkpoint().is_file() {
-        bail!("{} has no checkpoint to resume from", folder.display());
-    }
-    let done = dyad_sampler::checkpoint_step(run.files.checkpoint())?;
-    if done >= plan.sampler.max_steps {
-        bail!(
-            "the run has done {done} of its {} steps already; give a larger total with --max-steps",
-            plan.sampler.max_steps
-        );
-    }
-    if !quiet {
-        note!("resuming at step {done} of {}", plan.sampler.max_steps);
-    }
-    // A run restricted to a period window (made by `dyad periods`) resumes
-    // with the same restriction.
-    let density = match crate::run_folder::read_window(&run.files)? {
-        Some((lo, hi)) => Posterior::in_period_window(&model, lo, hi)
-            .context("the run's period window is not valid for this model")?,
-        None => Posterior::new(&model),
-    };
-    let mut sink = FileSink::open(run.files.chain())?;
-    let result = run_sampler(&density, &plan, &mut sink, None, quiet)?;
-    finish(&run.files, &run.config, &model, &plan, &result, quiet)
-}
-
-pub fn checkpoint_config(files: &RunFiles) -> CheckpointConfig {
-    CheckpointConfig::new(files.checkpoint(), checkpoint_every())
-}
-
-/// Records how the run ended and, unless it was stopped, writes the report.
+/// Records how a run into a folder ended and, unless it was stopped,
+/// writes the report.
 pub fn finish(
     files: &RunFiles,
     config: &RunConfig,
     model: &Model,
     plan: &SamplingPlan,
-    result: &RunResult,
-    quiet: bool,
-) -> Result<()> {
-    let mut outcome = Outcome::from_result(result)?;
-    let worst_rhat =
-        result
-            .diagnostics
-            .split_rhat
-            .iter()
-            .fold(1.0f64, |a, &r| if r.is_nan() { a } else { a.max(r) });
-    let unconverged = result.status == RunStatus::StepCap || worst_rhat > 1.1;
-    if !plan.tempered() && crate::plan::is_sparse(model) && unconverged {
-        outcome.warnings.push(format!(
-            "largest split R-hat {worst_rhat:.2}; {}",
-            crate::plan::temper_hint(model)
-        ));
-    }
+    result: RunResult,
+    observer: &mut dyn Observer,
+) -> Result<FitResult> {
+    let evidence = typed_evidence(&result)?;
+    let outcome = Outcome::from_result(&result, evidence.as_ref(), model, plan)?;
     outcome.write(files)?;
-    for w in &outcome.warnings {
-        note!("warning: {w}");
-    }
-    if result.status == RunStatus::Cancelled {
-        note!(
-            "stopped at step {} of {}; the state is checkpointed: continue with `dyad resume {}`",
-            result.steps,
-            plan.sampler.max_steps,
-            files.folder.display()
-        );
-        return Ok(());
-    }
-    crate::posterior::write_report(files, config, model, &outcome, quiet)
+    report_warnings(&outcome, observer);
+    let posterior = if result.status == RunStatus::Cancelled {
+        None
+    } else {
+        Some(crate::posterior::write_report(
+            files, config, model, &outcome,
+        )?)
+    };
+    Ok(FitResult {
+        sampler: result,
+        outcome,
+        evidence,
+        posterior,
+        folder: Some(files.folder.clone()),
+    })
 }

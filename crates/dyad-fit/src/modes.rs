@@ -5,6 +5,7 @@
 //!
 //! Modes are numbered from 1 in order of increasing period.
 
+use dyad_common::quantile::median_of_finite as median;
 use dyad_report::PosteriorDraws;
 
 use crate::posterior::Draws;
@@ -107,11 +108,6 @@ fn nearest_group(groups: &[[f64; 2]], l: f64) -> usize {
         .map_or(0, |(i, _)| i)
 }
 
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    dyad_report::stats::quantile_sorted(&v, 0.5)
-}
-
 /// Splits the draws into period modes and labels every draw. `walkers` is
 /// the number of walkers per record (draw `d` came from walker
 /// `d % walkers`), used for the weights' errors. A model without a period
@@ -199,7 +195,7 @@ pub fn period_modes(draws: &Draws) -> Vec<PeriodMode> {
 
 impl Draws {
     /// The draws labelled `mode` (1-based) in `labels`, in draw order.
-    pub fn of_mode(&self, labels: &[usize], mode: usize) -> anyhow::Result<Draws> {
+    pub fn of_mode(&self, labels: &[usize], mode: usize) -> crate::Result<Draws> {
         let dim = self.sampled.len() / self.table.n_draws().max(1);
         let np = self.table.n_params();
         let keep: Vec<usize> = (0..labels.len()).filter(|&d| labels[d] == mode).collect();

@@ -10,7 +10,7 @@
 use std::fs;
 use std::path::{Path, PathBuf};
 
-use anyhow::{bail, Context, Result};
+use crate::error::{bail, Context, Result};
 use serde_json::json;
 
 use dyad_model::config::RunConfig;
@@ -18,29 +18,58 @@ use dyad_model::likelihood::Model;
 use dyad_model::params::ScaledPrior;
 use dyad_model::prior::Prior;
 use dyad_model::start::{find_starting_points, StartSettings};
-use dyad_report::{MassInterval, WindowSummary};
-use dyad_sampler::evidence::{estimate_evidence, window_probabilities, EvidenceEstimates};
+use dyad_report::{MassInterval, PosteriorSummary, WindowSummary};
+use dyad_sampler::evidence::{window_probabilities, EvidenceEstimates, WindowOdds};
+use dyad_sampler::CheckpointConfig;
 
 use crate::density::Posterior;
-use crate::fit::{checkpoint_config, finish, open_run_folder, sample_fresh, starting_ensemble};
-use crate::modes::period_modes;
-use crate::plan::SamplingPlan;
-use crate::posterior::read_draws;
-use crate::run_folder::{write_text, write_window, RunFiles};
-use crate::terminal::{note, say};
+use crate::fit::{finish, open_run_folder, sample_fresh, starting_ensemble, FitResult};
+use crate::observer::{CancelFlag, Observer};
+use crate::plan::{checkpoint_every, SamplingPlan};
+use crate::run_folder::{write_text, write_window};
 
 /// Options of `dyad periods`.
+#[derive(Debug, Clone, Default)]
 pub struct PeriodOptions {
     /// Folder for the comparison (default: `<[output] folder>-periods`).
     pub output: Option<PathBuf>,
     /// Reuse a folder that holds files already.
     pub overwrite: bool,
-    /// No progress bars.
-    pub quiet: bool,
 }
 
 /// One window's result.
-struct WindowResult {
+#[derive(Debug, Clone)]
+pub struct WindowResult {
+    /// Shortest period of the window, days.
+    pub lo_days: f64,
+    /// Longest period of the window, days.
+    pub hi_days: f64,
+    /// Global prior probability of the window's periods.
+    pub prior_mass: f64,
+    /// The evidence of the posterior restricted to the window.
+    pub evidence: EvidenceEstimates,
+    /// Posterior probability of the window among those compared, from the
+    /// stepping-stone evidences.
+    pub stepping_stone: WindowOdds,
+    /// The same from thermodynamic integration.
+    pub thermodynamic_integration: WindowOdds,
+    /// Median and intervals of the masses in the window.
+    pub masses: Vec<MassInterval>,
+}
+
+/// What `dyad periods` found.
+#[derive(Debug, Clone)]
+pub struct PeriodComparison {
+    /// The comparison's folder (`periods.txt`, `.json`, plot, `window-N/`).
+    pub folder: PathBuf,
+    /// The windows, in order of increasing period.
+    pub windows: Vec<WindowResult>,
+    /// The table of `periods.txt`.
+    pub table: String,
+}
+
+/// Evidence and masses of one window before the odds are known.
+struct WindowRun {
     lo_days: f64,
     hi_days: f64,
     prior_mass: f64,
@@ -66,10 +95,8 @@ fn window_label(lo: f64, hi: f64) -> String {
 }
 
 /// Mass intervals of a window's posterior, for the side-by-side view.
-fn mass_intervals(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Vec<MassInterval>> {
-    let draws = read_draws(files, model, burn_in)?;
-    let summary = dyad_report::summarise(&draws.table)?;
-    Ok(summary
+fn mass_intervals(summary: &PosteriorSummary) -> Vec<MassInterval> {
+    summary
         .parameters
         .iter()
         .filter(|p| {
@@ -86,23 +113,31 @@ fn mass_intervals(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Vec<M
             lo95: p.q95[0],
             hi95: p.q95[1],
         })
-        .collect())
+        .collect()
+}
+
+/// The configuration and model every window's run shares.
+struct Comparison<'a> {
+    config: &'a RunConfig,
+    config_text: &'a str,
+    model: &'a Model,
+    overwrite: bool,
 }
 
 /// A tempered run of the posterior restricted to `[lo, hi]` days (or the
-/// whole prior when `window` is `None`) in `folder`.
-#[allow(clippy::too_many_arguments)]
+/// whole prior when `window` is `None`) in `folder`; an error if it was
+/// stopped by the user.
 fn tempered_run(
+    c: &Comparison<'_>,
     folder: &Path,
-    config: &RunConfig,
-    config_text: &str,
-    model: &Model,
     window: Option<(f64, f64)>,
-    overwrite: bool,
-    quiet: bool,
-) -> Result<(RunFiles, dyad_sampler::RunResult)> {
-    let files = open_run_folder(folder, config, config_text, overwrite)?;
-    let mut plan = SamplingPlan::new(config, model, Some(checkpoint_config(&files)))?;
+    observer: &mut dyn Observer,
+    cancel: &CancelFlag,
+) -> Result<FitResult> {
+    let (config, model) = (c.config, c.model);
+    let files = open_run_folder(folder, config, c.config_text, c.overwrite)?;
+    let checkpoint = CheckpointConfig::new(files.checkpoint(), checkpoint_every());
+    let mut plan = SamplingPlan::new(config, model, Some(checkpoint))?;
     plan.ensure_tempering();
     let (density, start) = match window {
         Some((lo, hi)) => {
@@ -118,36 +153,36 @@ fn tempered_run(
             starting_ensemble(model, config, &plan)?,
         ),
     };
-    let result = sample_fresh(&files, &density, &plan, &start, quiet)?;
-    finish(&files, config, model, &plan, &result, true)?;
-    Ok((files, result))
+    let result = sample_fresh(&files, &density, &plan, &start, observer, cancel)?;
+    let result = finish(&files, config, model, &plan, result, observer)?;
+    if result.was_cancelled() {
+        bail!(
+            "stopped by the user at step {} of {}; the comparison is incomplete (run it again)",
+            result.sampler.steps,
+            plan.sampler.max_steps
+        );
+    }
+    Ok(result)
 }
 
 /// Windows from the separate period modes of a tempered run over the whole
 /// prior, and from the distinct optima of the starting-point search (which
 /// finds aliases the cold chain may never visit): see [`windows_around`].
 fn discover_windows(
+    c: &Comparison<'_>,
     folder: &Path,
-    config: &RunConfig,
-    config_text: &str,
-    model: &Model,
-    options: &PeriodOptions,
+    observer: &mut dyn Observer,
+    cancel: &CancelFlag,
 ) -> Result<Vec<(f64, f64)>> {
-    if !options.quiet {
-        note!("no period windows configured: a tempered run over the whole prior finds them ...");
-    }
-    let (files, _) = tempered_run(
-        &folder.join("survey"),
-        config,
-        config_text,
-        model,
-        None,
-        options.overwrite,
-        options.quiet,
-    )?;
-    let outcome = crate::fit::Outcome::read(&files)?;
-    let draws = read_draws(&files, model, outcome.burn_in)?;
-    let mut ranges: Vec<[f64; 2]> = period_modes(&draws).iter().map(|m| m.range_days).collect();
+    let (config, model) = (c.config, c.model);
+    observer.message(
+        "no period windows configured: a tempered run over the whole prior finds them ...",
+    );
+    let survey = tempered_run(c, &folder.join("survey"), None, observer, cancel)?;
+    let posterior = survey
+        .posterior
+        .context("the survey run gave no posterior")?;
+    let mut ranges: Vec<[f64; 2]> = posterior.modes.modes.iter().map(|m| m.range_days).collect();
     let settings = StartSettings {
         seed: config.sampler.seed,
         ..StartSettings::default()
@@ -202,8 +237,15 @@ pub fn windows_around(ranges: &[[f64; 2]], (p_lo, p_hi): (f64, f64)) -> Vec<(f64
         .collect()
 }
 
-/// `dyad periods CONFIG`.
-pub fn periods(config_path: &Path, options: &PeriodOptions) -> Result<()> {
+/// `dyad periods CONFIG`: a tempered run per period window, the windows'
+/// evidences and posterior probabilities, written into the comparison's
+/// folder and returned.
+pub fn compare(
+    config_path: &Path,
+    options: &PeriodOptions,
+    observer: &mut dyn Observer,
+    cancel: &CancelFlag,
+) -> Result<PeriodComparison> {
     let config_text = fs::read_to_string(config_path)
         .with_context(|| format!("reading {}", config_path.display()))?;
     let config = RunConfig::from_toml_str(&config_text, config_path)?;
@@ -215,9 +257,15 @@ pub fn periods(config_path: &Path, options: &PeriodOptions) -> Result<()> {
     });
     dyad_report::prepare_run_folder(&folder, options.overwrite)
         .with_context(|| format!("preparing {}", folder.display()))?;
+    let comparison = Comparison {
+        config: &config,
+        config_text: &config_text,
+        model: &model,
+        overwrite: options.overwrite,
+    };
     let mut windows = config.sampler.period_windows_days.clone();
     if windows.is_empty() {
-        windows = discover_windows(&folder, &config, &config_text, &model, options)?;
+        windows = discover_windows(&comparison, &folder, observer, cancel)?;
     }
     windows.sort_by(|a, b| a.0.total_cmp(&b.0));
     let period_prior = model.layout().priors().period_days;
@@ -232,41 +280,37 @@ pub fn periods(config_path: &Path, options: &PeriodOptions) -> Result<()> {
                 window_label(lo, hi)
             );
         }
-        if !options.quiet {
-            note!(
-                "window {} of {}: {}",
-                k + 1,
-                windows.len(),
-                window_label(lo, hi)
-            );
-        }
-        let (files, result) = tempered_run(
+        observer.message(&format!(
+            "window {} of {}: {}",
+            k + 1,
+            windows.len(),
+            window_label(lo, hi)
+        ));
+        let result = tempered_run(
+            &comparison,
             &folder.join(format!("window-{}", k + 1)),
-            &config,
-            &config_text,
-            &model,
             Some((lo, hi)),
-            options.overwrite,
-            options.quiet,
+            observer,
+            cancel,
         )?;
-        let tempered = result
-            .tempered
-            .as_ref()
+        let evidence = result
+            .evidence
             .context("the tempered run returned no tempered chains")?;
-        let evidence = estimate_evidence(tempered).context("estimating the evidence")?;
-        let outcome = crate::fit::Outcome::read(&files)?;
-        results.push(WindowResult {
+        let posterior = result
+            .posterior
+            .context("the window's run gave no posterior")?;
+        results.push(WindowRun {
             lo_days: lo,
             hi_days: hi,
             prior_mass,
             evidence,
-            masses: mass_intervals(&files, &model, outcome.burn_in)?,
+            masses: mass_intervals(&posterior.summary),
         });
     }
-    write_comparison(&folder, &results, options.quiet)
+    write_comparison(folder, results)
 }
 
-fn write_comparison(folder: &Path, results: &[WindowResult], quiet: bool) -> Result<()> {
+fn write_comparison(folder: PathBuf, results: Vec<WindowRun>) -> Result<PeriodComparison> {
     let ln_z = |f: &dyn Fn(&EvidenceEstimates) -> (f64, f64)| -> (Vec<f64>, Vec<f64>) {
         results.iter().map(|r| f(&r.evidence)).unzip()
     };
@@ -364,17 +408,31 @@ fn write_comparison(folder: &Path, results: &[WindowResult], quiet: bool) -> Res
         "Period windows: posterior probability (stepping-stone evidence)",
         &summaries,
     )?;
-    if !quiet {
-        say!("{table}")?;
-        say!("results in {}", folder.display())?;
-    }
-    Ok(())
+    let windows = results
+        .into_iter()
+        .zip(odds_ss.into_iter().zip(odds_ti))
+        .map(|(r, (ss, ti))| WindowResult {
+            lo_days: r.lo_days,
+            hi_days: r.hi_days,
+            prior_mass: r.prior_mass,
+            evidence: r.evidence,
+            stepping_stone: ss,
+            thermodynamic_integration: ti,
+            masses: r.masses,
+        })
+        .collect();
+    Ok(PeriodComparison {
+        folder,
+        windows,
+        table,
+    })
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
     use dyad_report::{ParameterInfo, PosteriorDraws};
+    use dyad_sampler::evidence::estimate_evidence;
     use dyad_sampler::LogDensity;
 
     /// Draws of a posterior with two period modes, log-normal in P around

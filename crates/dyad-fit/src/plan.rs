@@ -5,7 +5,7 @@
 
 use std::time::Duration;
 
-use anyhow::{bail, Result};
+use crate::error::{bail, Result};
 
 use dyad_model::config::{RunConfig, Tempering};
 use dyad_model::likelihood::Model;
@@ -89,13 +89,8 @@ impl SamplingPlan {
             max_split_rhat: s.max_split_rhat,
             ..Convergence::default()
         });
-        let burn_in_steps = (s.burn_in_fraction * s.max_steps as f64).round() as u64;
         if n_temps > 1 {
-            sampler.tempering = Some(TemperingConfig {
-                n_temperatures: n_temps,
-                burn_in_steps: burn_in_steps.max(1),
-                ..TemperingConfig::default()
-            });
+            sampler.tempering = Some(ladder(n_temps, s.burn_in_fraction, sampler.max_steps));
         }
         Ok(Self {
             sampler,
@@ -109,19 +104,27 @@ impl SamplingPlan {
     /// ladder adapts during the burn-in share of `max_steps`.
     pub fn ensure_tempering(&mut self) {
         if self.sampler.tempering.is_none() {
-            let burn_in_steps =
-                (self.burn_in_fraction * self.sampler.max_steps as f64).round() as u64;
-            self.sampler.tempering = Some(TemperingConfig {
-                n_temperatures: AUTO_TEMPERATURES,
-                burn_in_steps: burn_in_steps.max(1),
-                ..TemperingConfig::default()
-            });
+            self.sampler.tempering = Some(ladder(
+                AUTO_TEMPERATURES,
+                self.burn_in_fraction,
+                self.sampler.max_steps,
+            ));
         }
     }
 
     /// Whether the run is tempered.
     pub fn tempered(&self) -> bool {
         self.sampler.tempering.is_some()
+    }
+}
+
+/// A ladder of `n_temperatures` that adapts during the burn-in share of
+/// `max_steps` (at least one step), then freezes.
+fn ladder(n_temperatures: usize, burn_in_fraction: f64, max_steps: u64) -> TemperingConfig {
+    TemperingConfig {
+        n_temperatures,
+        burn_in_steps: dyad_common::burn_in_steps(burn_in_fraction, max_steps).max(1),
+        ..TemperingConfig::default()
     }
 }
 

@@ -4,7 +4,7 @@
 
 use std::fs;
 
-use anyhow::{Context, Result};
+use crate::error::{ensure, Context, Result};
 use serde_json::json;
 
 use dyad_model::config::RunConfig;
@@ -15,19 +15,19 @@ use dyad_report::{
     DistributionPanel, ParameterInfo, PosteriorDraws, PosteriorSummary, RunMetadata,
     SkyMeasurement, SkyPlotInput, VelocityPlotInput,
 };
-use dyad_sampler::for_each_record;
+use dyad_sampler::{for_each_record, RecordTable};
 
 use crate::check::prior_lines;
 use crate::fit::Outcome;
-use crate::modes::{split_modes, PeriodMode};
+use crate::modes::{split_modes, ModeSplit, PeriodMode};
 use crate::run_folder::{write_text, RunFiles};
-use crate::terminal::say;
 
 /// Most posterior draws kept for the report (records are thinned evenly
 /// beyond this; the chain file keeps them all).
 pub const MAX_DRAWS: usize = 40_000;
 
 /// Posterior draws: sampled coordinates and physical quantities.
+#[derive(Debug, Clone)]
 pub struct Draws {
     /// Walkers per record: draw `d` came from walker `d % walkers`.
     pub walkers: usize,
@@ -85,22 +85,58 @@ pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws
     // so a long chain is never held in memory whole.
     let chain = files.chain();
     let mut steps = Vec::new();
-    let (nw, vpw) = for_each_record(&chain, |step, _| steps.push(step))
+    let shape = for_each_record(&chain, |step, _| steps.push(step))
         .with_context(|| format!("reading the chain {}", chain.display()))?;
+    let source = chain.display().to_string();
+    draws_of_records(model, burn_in, &steps, shape, &source, |visit| {
+        for_each_record(&chain, |_, record| visit(record))
+            .map(|_| ())
+            .with_context(|| format!("reading the chain {}", chain.display()))
+    })
+}
+
+/// The posterior draws after burn-in of records kept in memory (a run with
+/// [`crate::Storage::Memory`]).
+pub fn draws_from_table(table: &RecordTable, model: &Model, burn_in: u64) -> Result<Draws> {
+    let width = table.n_walkers * table.values_per_walker;
+    draws_of_records(
+        model,
+        burn_in,
+        &table.steps,
+        (table.n_walkers, table.values_per_walker),
+        "the sampled records",
+        |visit| {
+            for record in table.values.chunks_exact(width.max(1)) {
+                visit(record);
+            }
+            Ok(())
+        },
+    )
+}
+
+/// Draws from records of `nw` walkers of `vpw` values each (the sampled
+/// coordinates, then the log-prior and log-likelihood): `steps[r]` is the
+/// step of record `r`, and `records` calls its argument with every record
+/// in order. Records after `burn_in` are kept, evenly thinned to at most
+/// [`MAX_DRAWS`] draws.
+fn draws_of_records(
+    model: &Model,
+    burn_in: u64,
+    steps: &[u64],
+    (nw, vpw): (usize, usize),
+    source: &str,
+    records: impl FnOnce(&mut dyn FnMut(&[f64])) -> Result<()>,
+) -> Result<Draws> {
     let dim = model.dim();
     let first = steps.partition_point(|&s| s <= burn_in);
     let n_records = steps.len().saturating_sub(first);
-    anyhow::ensure!(
+    ensure!(
         vpw == dim + 2,
-        "{} holds {} values per walker, but the model has {} parameters",
-        chain.display(),
-        vpw,
-        dim
+        "{source} holds {vpw} values per walker, but the model has {dim} parameters"
     );
-    anyhow::ensure!(
+    ensure!(
         n_records > 0,
-        "{} holds no samples after the burn-in of {burn_in} steps: run longer",
-        chain.display()
+        "{source} holds no samples after the burn-in of {burn_in} steps: run longer"
     );
     let stride = (n_records * nw).div_ceil(MAX_DRAWS).max(1);
     let derived_names = model.derived_names_units();
@@ -119,7 +155,7 @@ pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws
     let mut values = Vec::new();
     let mut log_posterior = Vec::new();
     let mut r = 0;
-    for_each_record(&chain, |_, record| {
+    records(&mut |record: &[f64]| {
         if r >= first && (r - first).is_multiple_of(stride) {
             for w in 0..nw {
                 let v = &record[w * vpw..(w + 1) * vpw];
@@ -131,14 +167,44 @@ pub fn read_draws(files: &RunFiles, model: &Model, burn_in: u64) -> Result<Draws
             }
         }
         r += 1;
-    })
-    .with_context(|| format!("reading the chain {}", chain.display()))?;
+    })?;
     let table = PosteriorDraws::new(params, values, log_posterior)?;
     Ok(Draws {
         walkers: nw,
         sampled,
         table,
     })
+}
+
+/// The posterior of a finished run: its draws after burn-in, their summary
+/// and their period modes, and the text summary (for a run folder, as
+/// `summary.txt` holds it).
+#[derive(Debug, Clone)]
+pub struct PosteriorReport {
+    /// The draws.
+    pub draws: Draws,
+    /// Medians, intervals and the MAP of every quantity.
+    pub summary: PosteriorSummary,
+    /// The separate period modes and the mode of every draw.
+    pub modes: ModeSplit,
+    /// The text summary.
+    pub text: String,
+}
+
+impl PosteriorReport {
+    /// Summary and modes of `draws`, with the parameter table as text (no
+    /// run-folder statements: a fit in memory has none).
+    pub fn of_draws(draws: Draws) -> Result<Self> {
+        let summary = dyad_report::summarise(&draws.table)?;
+        let modes = split_modes(&draws.table, draws.walkers);
+        let text = dyad_report::text_parameter_table(&physical_only(&summary));
+        Ok(Self {
+            draws,
+            summary,
+            modes,
+            text,
+        })
+    }
 }
 
 /// The statement of what the posterior depends on, for every report.
@@ -313,14 +379,14 @@ fn diagnostics_document(
     })
 }
 
-/// Writes summaries, samples, diagnostics and plots of a finished run.
+/// Writes summaries, samples, diagnostics and plots of a finished run, and
+/// returns its posterior.
 pub fn write_report(
     files: &RunFiles,
     config: &RunConfig,
     model: &Model,
     outcome: &Outcome,
-    quiet: bool,
-) -> Result<()> {
+) -> Result<PosteriorReport> {
     let draws = read_draws(files, model, outcome.burn_in)?;
     let summary = dyad_report::summarise(&draws.table)?;
     let split = split_modes(&draws.table, draws.walkers);
@@ -409,11 +475,12 @@ pub fn write_report(
         &serde_json::to_string_pretty(&diagnostics)?,
     )?;
     write_tables(folder, model, &draws, &summary, &split)?;
-    if !quiet {
-        say!("{text}")?;
-        say!("results in {}", folder.display())?;
-    }
-    Ok(())
+    Ok(PosteriorReport {
+        draws,
+        summary,
+        modes: split,
+        text,
+    })
 }
 
 fn map_point<'a>(draws: &'a Draws, summary: &PosteriorSummary, dim: usize) -> &'a [f64] {
@@ -699,10 +766,11 @@ fn velocity_input(model: &Model, map_x: &[f64], note: &str) -> Option<VelocityPl
     })
 }
 
-/// `dyad report RUN`: redraws summaries and plots from a run folder.
-pub fn report(folder: &std::path::Path) -> Result<()> {
+/// `dyad report RUN`: redraws summaries and plots from a run folder and
+/// returns its posterior.
+pub fn report(folder: &std::path::Path) -> Result<PosteriorReport> {
     let run = crate::run_folder::ExistingRun::open(folder)?;
     let model = Model::from_config(&run.config)?;
     let outcome = Outcome::read(&run.files)?;
-    write_report(&run.files, &run.config, &model, &outcome, false)
+    write_report(&run.files, &run.config, &model, &outcome)
 }

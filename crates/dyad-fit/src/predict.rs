@@ -17,21 +17,21 @@
 use std::fs;
 use std::path::{Path, PathBuf};
 
-use anyhow::{bail, Context, Result};
+use crate::error::{bail, Context, Result};
 use rayon::prelude::*;
 use serde_json::json;
 
+use dyad_common::quantile::quantile_sorted;
 use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
 use dyad_orbit::time::TimeScale;
-use dyad_report::stats::{circular_mean, quantile_sorted, wrap_around};
+use dyad_report::stats::{circular_mean, wrap_around};
 use dyad_report::SkyPrediction;
 
 use crate::fit::Outcome;
 use crate::modes::split_modes;
 use crate::posterior::{orbit_track, read_draws, sky_measurement, Draws};
 use crate::run_folder::{write_text, ExistingRun};
-use crate::terminal::{say, say_raw};
 
 /// Most draws of one mode used for its predictions (evenly thinned beyond).
 const DRAWS_PER_MODE: usize = 4000;
@@ -100,18 +100,25 @@ pub fn epochs_of(options: &PredictOptions) -> Result<Vec<f64>> {
 }
 
 /// The predicted quantities, in column order.
-#[derive(Clone, Copy, PartialEq, Eq)]
-enum Quantity {
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Quantity {
+    /// Separation, mas.
     Separation,
+    /// Position angle, degrees.
     PositionAngle,
+    /// Offset dRA* (east), mas.
     Dra,
+    /// Offset dDec (north), mas.
     Ddec,
+    /// Model velocity of the primary on the first instrument's zero point, km/s.
     VelocityPrimary,
+    /// Model velocity of the secondary likewise, km/s.
     VelocitySecondary,
 }
 
 impl Quantity {
-    fn column(self) -> &'static str {
+    /// Its column name in `predictions.csv`.
+    pub fn column(self) -> &'static str {
         match self {
             Quantity::Separation => "sep_mas",
             Quantity::PositionAngle => "pa_deg",
@@ -168,14 +175,17 @@ fn quantiles(values: &mut [f64], angle: bool) -> [f64; 7] {
 }
 
 /// Mean (dRA*, dDec) and their covariance, mas and mas².
-type OffsetSpread = ((f64, f64), [[f64; 2]; 2]);
+pub type OffsetSpread = ((f64, f64), [[f64; 2]; 2]);
 
 /// Posterior-predictive quantiles of one mode at one epoch.
-struct ModePrediction {
-    /// Quantiles per quantity (in the order of [`quantities`]).
-    quantiles: Vec<[f64; 7]>,
-    /// Mean and covariance of the offsets (for the sky plot's ellipse).
-    offsets: Option<OffsetSpread>,
+#[derive(Debug, Clone)]
+pub struct ModePrediction {
+    /// Quantiles per quantity (in the order of [`Prediction::quantities`]):
+    /// median, then the ends of the 68, 90 and 95 per cent intervals.
+    pub quantiles: Vec<[f64; 7]>,
+    /// Mean (dRA*, dDec) and their covariance, mas and mas² (for the sky
+    /// plot's ellipse).
+    pub offsets: Option<OffsetSpread>,
 }
 
 /// Predictions of one mode at every epoch.
@@ -249,16 +259,16 @@ fn predict_mode(
         .collect()
 }
 
-/// The first `RUN/prediction-N` that does not exist yet.
-fn next_prediction_folder(run: &Path) -> PathBuf {
+/// The first `RUN/prediction-N` that does not exist yet, and its N.
+fn next_prediction_folder(run: &Path) -> (usize, PathBuf) {
     (1..)
-        .map(|k| run.join(format!("prediction-{k}")))
-        .find(|p| !p.exists())
+        .map(|k| (k, run.join(format!("prediction-{k}"))))
+        .find(|(_, p)| !p.exists())
         .expect("some numbered folder is free")
 }
 
 /// `dyad predict`.
-pub fn predict(folder: &Path, options: &PredictOptions) -> Result<()> {
+pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
     let scale = TimeScale::from_column_name(&options.scale).with_context(|| {
         format!(
             "unknown time scale '{}': use jyear, byear, jd or mjd",
@@ -360,7 +370,7 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<()> {
     // Assemble the folder under a temporary name, then move it into place:
     // an earlier prediction is never touched and no half-written folder is
     // left behind.
-    let target = next_prediction_folder(&run.files.folder);
+    let (number, target) = next_prediction_folder(&run.files.folder);
     let partial = run.files.folder.join(format!(
         ".{}.partial-{}",
         target
@@ -402,26 +412,34 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<()> {
         );
     }
     fs::rename(&partial, &target).with_context(|| format!("creating {}", target.display()))?;
-    say_raw!("{text}")?;
-    let earlier = target
-        .file_name()
-        .and_then(|n| n.to_str())
-        .and_then(|n| n.strip_prefix("prediction-"))
-        .and_then(|k| k.parse::<usize>().ok())
-        .filter(|&k| k > 1);
-    match earlier {
-        Some(2) => say!(
-            "wrote {} (the earlier prediction-1 is kept)",
-            target.display()
-        ),
-        Some(k) => say!(
-            "wrote {} (the earlier prediction-1 to prediction-{} are kept)",
-            target.display(),
-            k - 1
-        ),
-        None => say!("wrote {}", target.display()),
-    }?;
-    Ok(())
+    Ok(Prediction {
+        folder: target,
+        number,
+        text,
+        epochs_jd: times,
+        quantities,
+        modes: split.modes,
+        per_mode,
+    })
+}
+
+/// What `dyad predict` made.
+#[derive(Debug, Clone)]
+pub struct Prediction {
+    /// The new folder `RUN/prediction-N`.
+    pub folder: PathBuf,
+    /// Its number N (earlier predictions 1 to N - 1 are kept).
+    pub number: usize,
+    /// The table of `predictions.txt`.
+    pub text: String,
+    /// The epochs, JD.
+    pub epochs_jd: Vec<f64>,
+    /// The predicted quantities, in the order of the quantiles below.
+    pub quantities: Vec<Quantity>,
+    /// The period modes predictions were made for.
+    pub modes: Vec<crate::modes::PeriodMode>,
+    /// Per mode, per epoch: the predictive quantiles.
+    pub per_mode: Vec<Vec<ModePrediction>>,
 }
 
 /// The sky plot: posterior orbits and, per mode, the predicted mean

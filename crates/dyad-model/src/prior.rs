@@ -23,13 +23,16 @@
 //! `shape` key: `{ shape = "log_uniform", min = 1.0, max = 1e6 }`. See
 //! [`Prior::from_toml`]. The serialised (JSON) form is the same table.
 
-use std::f64::consts::SQRT_2;
 use std::path::Path;
 
+// The standard normal distribution, accurate in both tails.
+use dyad_common::normal::{
+    cdf as std_normal_cdf, isf as std_normal_isf, pdf as std_normal_pdf,
+    quantile as std_normal_quantile, sf as std_normal_sf, HALF_LN_2PI,
+};
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
 use statrs::function::beta::{checked_beta_reg, inv_beta_reg, ln_beta};
-use statrs::function::erf::{erfc, erfc_inv};
 
 use crate::error::ModelError;
 
@@ -38,9 +41,6 @@ use crate::error::ModelError;
 /// A window holding less than this lies more than about six standard
 /// deviations from the mean: almost surely a typing mistake in the file.
 pub const MIN_TRUNCATED_MASS: f64 = 1e-9;
-
-/// 0.5 ln(2 pi).
-const HALF_LN_2PI: f64 = 0.918_938_533_204_672_8;
 
 /// The kind of a prior and its parameters.
 ///
@@ -147,53 +147,6 @@ fn require_ordered(min: f64, max: f64) -> Result<(), ModelError> {
         Err(invalid(format!(
             "min ({min}) must be less than max ({max})"
         )))
-    }
-}
-
-/// Standard normal cumulative distribution Phi(z) = erfc(-z / sqrt 2) / 2,
-/// accurate in the lower tail.
-fn std_normal_cdf(z: f64) -> f64 {
-    0.5 * erfc(-z / SQRT_2)
-}
-
-/// Standard normal survival function 1 - Phi(z), accurate in the upper tail.
-fn std_normal_sf(z: f64) -> f64 {
-    0.5 * erfc(z / SQRT_2)
-}
-
-/// Inverse of Phi: Phi^-1(p) = -sqrt 2 erfc^-1(2p), accurate for small p,
-/// refined by one Newton step on Phi(z) = p (the rational approximation
-/// behind `erfc_inv` alone leaves relative errors near 1e-11).
-fn std_normal_quantile(p: f64) -> f64 {
-    let z = -SQRT_2 * erfc_inv(2.0 * p);
-    newton_step(z, std_normal_cdf(z) - p)
-}
-
-/// Inverse of the survival function: z with 1 - Phi(z) = q, accurate for
-/// small q, refined as [`std_normal_quantile`].
-fn std_normal_isf(q: f64) -> f64 {
-    let z = SQRT_2 * erfc_inv(2.0 * q);
-    newton_step(z, q - std_normal_sf(z))
-}
-
-/// z - residual / phi(z), or z itself where the step is undefined.
-fn newton_step(z: f64, residual: f64) -> f64 {
-    let density = std_normal_pdf(z);
-    if z.is_finite() && density > 0.0 {
-        let next = z - residual / density;
-        if next.is_finite() {
-            return next;
-        }
-    }
-    z
-}
-
-/// Standard normal density; 0 at +-inf.
-fn std_normal_pdf(z: f64) -> f64 {
-    if z.is_infinite() {
-        0.0
-    } else {
-        (-0.5 * z * z - HALF_LN_2PI).exp()
     }
 }
 

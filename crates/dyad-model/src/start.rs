@@ -76,14 +76,8 @@ pub struct StartPoint {
     pub log_posterior: f64,
 }
 
-/// SplitMix64 (Steele, Lea & Flood 2014): mixes (seed, index) into a seed.
-fn mix_seed(seed: u64, index: u64) -> u64 {
-    let mut z = seed ^ index.wrapping_mul(0x9E37_79B9_7F4A_7C15);
-    z = z.wrapping_add(0x9E37_79B9_7F4A_7C15);
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
-}
+// SplitMix64 (Steele, Lea & Flood 2014) mixes (seed, index) into a seed.
+use dyad_common::seed::mix_seed;
 
 /// Solves the small dense system `m y = b` (row-major n x n) by Gaussian
 /// elimination with partial pivoting; `None` if singular.

@@ -20,17 +20,9 @@ pub const QUANTILE_RULE: &str =
     "Hyndman & Fan (1996) definition 7: linear interpolation between order statistics, h = (n-1)p";
 
 /// Quantile `p` in [0, 1] of already sorted finite values (Hyndman & Fan
-/// 1996, definition 7). Returns NaN for an empty slice.
-pub fn quantile_sorted(sorted: &[f64], p: f64) -> f64 {
-    let n = sorted.len();
-    if n == 0 {
-        return f64::NAN;
-    }
-    let h = (n - 1) as f64 * p.clamp(0.0, 1.0);
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(n - 1);
-    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
-}
+/// 1996, definition 7; NaN for an empty slice): the one implementation in
+/// `dyad-common`.
+pub use dyad_common::quantile::quantile_sorted;
 
 /// Circular mean of values with period `period` (Mardia & Jupp 2000,
 /// sect. 2.2.1), in [0, period). NaN if the mean resultant length is zero.

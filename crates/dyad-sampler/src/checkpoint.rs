@@ -7,9 +7,8 @@
 //! same however long the run. Floats are stored as their exact bit patterns,
 //! so a resumed run continues bit for bit.
 
-use std::fs::{self, File};
-use std::io::Write;
-use std::path::{Path, PathBuf};
+use std::fs;
+use std::path::Path;
 
 use crate::error::SamplerError;
 
@@ -103,36 +102,16 @@ impl<'a> Decoder<'a> {
 
 /// Writes `payload` to `path` atomically: temporary file, fsync, rename, fsync of the folder.
 pub(crate) fn write_atomic(path: &Path, payload: &[u8]) -> Result<(), SamplerError> {
-    let tmp: PathBuf = {
-        let mut name = path
-            .file_name()
-            .map(|n| n.to_os_string())
-            .unwrap_or_default();
-        name.push(".tmp");
-        path.with_file_name(name)
-    };
-    {
-        let mut f = File::create(&tmp).map_err(|e| SamplerError::io(&tmp, e))?;
-        f.write_all(MAGIC).map_err(|e| SamplerError::io(&tmp, e))?;
-        f.write_all(&(payload.len() as u64).to_le_bytes())
-            .map_err(|e| SamplerError::io(&tmp, e))?;
-        f.write_all(payload)
-            .map_err(|e| SamplerError::io(&tmp, e))?;
-        f.sync_all().map_err(|e| SamplerError::io(&tmp, e))?;
-    }
-    fs::rename(&tmp, path).map_err(|e| SamplerError::io(path, e))?;
-    if let Some(dir) = path.parent() {
-        let dir = if dir.as_os_str().is_empty() {
-            Path::new(".")
-        } else {
-            dir
-        };
-        // Persist the rename; not every platform can open a folder, so ignore failure to open.
-        if let Ok(d) = File::open(dir) {
-            d.sync_all().map_err(|e| SamplerError::io(dir, e))?;
-        }
-    }
-    Ok(())
+    dyad_common::atomic::write_atomically(
+        path,
+        |f| {
+            f.write_all(MAGIC)
+                .and_then(|()| f.write_all(&(payload.len() as u64).to_le_bytes()))
+                .and_then(|()| f.write_all(payload))
+                .map_err(|e| SamplerError::io(path, e))
+        },
+        |p: &Path, e| SamplerError::io(p, e),
+    )
 }
 
 /// Reads a checkpoint's payload.

@@ -11,14 +11,8 @@ use rand_xoshiro::Xoshiro256PlusPlus;
 /// The generator type used by every stream of a run.
 pub type StreamRng = Xoshiro256PlusPlus;
 
-/// SplitMix64 finaliser (Steele, Lea & Flood, "Fast splittable pseudorandom
-/// number generators", OOPSLA 2014), used to decorrelate nearby seeds.
-fn splitmix64(mut z: u64) -> u64 {
-    z = z.wrapping_add(0x9E37_79B9_7F4A_7C15);
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
-}
+// SplitMix64 (Steele, Lea & Flood 2014) decorrelates nearby seeds.
+use dyad_common::seed::splitmix64;
 
 /// Kinds of stream, so that walker, start-up and swap streams never coincide.
 #[derive(Clone, Copy, Debug)]

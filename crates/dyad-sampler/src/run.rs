@@ -961,10 +961,8 @@ fn drive_steps<D: LogDensity + ?Sized>(
     finish(config, state, status, ladder_store)
 }
 
-/// Burn-in of `fraction` of `steps` (rounded to the nearest step).
-fn fraction_of(fraction: f64, steps: u64) -> u64 {
-    (fraction * steps as f64).round() as u64
-}
+// Burn-in of `fraction` of `steps`, rounded to the nearest step.
+use dyad_common::burn_in_steps as fraction_of;
 
 fn check_convergence(
     state: &mut State,

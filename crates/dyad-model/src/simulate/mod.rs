@@ -310,33 +310,17 @@ fn fmt_time(value: f64, scale: TimeScale) -> String {
     }
 }
 
-/// Writes `text` to `path` atomically: a temporary file in the same folder,
-/// flushed, then renamed over the target.
+/// Writes `text` to `path` atomically (never half-written).
 fn write_atomic(path: &Path, text: &str) -> Result<(), ModelError> {
-    use std::io::Write;
-    let io = |source| ModelError::Io {
+    let io = |path: &Path, source| ModelError::Io {
         path: path.to_owned(),
         source,
     };
-    let folder = path
-        .parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().into_owned())
-        .unwrap_or_default();
-    let tmp = folder.join(format!(".{name}.tmp-{}", std::process::id()));
-    let result = (|| {
-        let mut f = std::fs::File::create(&tmp)?;
-        f.write_all(text.as_bytes())?;
-        f.sync_all()?;
-        std::fs::rename(&tmp, path)
-    })();
-    if result.is_err() {
-        let _ = std::fs::remove_file(&tmp);
-    }
-    result.map_err(io)
+    dyad_common::atomic::write_atomically(
+        path,
+        |w| w.write_all(text.as_bytes()).map_err(|e| io(path, e)),
+        io,
+    )
 }
 
 /// Runs a scenario file: simulates and writes its CSV files. Refuses (before
