@@ -26,9 +26,15 @@ use dyad_model::load::load_dataset;
 use dyad_model::params::{ModelPriors, OrbitalParameters, PhysicalParameters};
 use dyad_model::simulate::Scenario;
 use dyad_sampler::diagnostics::autocorr_time;
+// The sampling plan of the workflows, for `fit_moves` (the mixture `dyad fit`
+// samples with); the binary's modules are not a library this example can use.
+#[allow(dead_code)]
+#[path = "../src/plan.rs"]
+mod plan;
 use dyad_sampler::{
     run, FnDensity, MemorySink, MoveMixture, Progress, RunConfig, RunControl, Start,
 };
+use plan::fit_moves;
 
 /// Observation counts of the three data sets (2 per astrometric epoch, 1 per velocity).
 const OBSERVATION_COUNTS: [usize; 3] = [20, 100, 1000];
@@ -670,8 +676,7 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
             "{}; same chain as on 1 thread: {identical}",
             describe(n, &two)
         );
-        // The moves `dyad fit` uses.
-        let fit_moves = MoveMixture::stretch_and_differential_evolution();
+        let fit_moves = fit_moves();
         let mixture = sample(&model, &start, s.walkers, 1, s, &fit_moves)?;
         println!("{} (dyad fit's moves)", describe(n, &mixture));
         let mixture_two = sample(&model, &start, s.walkers, 2, s, &fit_moves)?;
@@ -703,7 +708,7 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
             "chain_shape": [serial.kept_steps, s.walkers, model.dim()],
         }));
     }
-    let fit_weights = MoveMixture::stretch_and_differential_evolution().weights();
+    let fit_weights = fit_moves().weights();
     let doc = json!({
         "steps": s.steps,
         "burn_in": s.burn_in,
