@@ -273,3 +273,35 @@ fn demo_scenarios_reproduce_the_shipped_files() {
         }
     }
 }
+
+#[test]
+fn scenario_errors_name_the_line_and_column() {
+    // Lines and columns counted in SMALL (its first line is empty).
+    let path = Path::new("bad.toml");
+    let cases = [
+        (
+            SMALL.replace("eccentricity = 0.35", "eccentricity = 1.5"),
+            "bad.toml, line 8, column 16, key 'system.eccentricity'",
+            "must be in [0, 1)",
+        ),
+        (
+            SMALL.replace("form = \"cartesian\"", "form = \"sideways\""),
+            "bad.toml, line 19, column 8, key 'astrometry.form'",
+            "must be one of polar, cartesian, got \"sideways\"",
+        ),
+        (
+            SMALL.replace(
+                "stars = [\"primary\"]",
+                "stars = [\"primary\", \"tertiary\"]",
+            ),
+            "bad.toml, line 39, column 21, key 'velocities.instruments[1].stars[1]'",
+            "must be one of primary, secondary",
+        ),
+    ];
+    for (text, place, words) in cases {
+        let err = Scenario::from_toml_str(&text.replace("NOISE", "true"), path)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains(place) && err.contains(words), "{place}: {err}");
+    }
+}
