@@ -21,20 +21,15 @@ use anyhow::{bail, Context, Result};
 use clap::{Parser, Subcommand};
 use serde_json::{json, Value};
 
+use dyad_fit::plan::fit_moves;
 use dyad_model::likelihood::Model;
 use dyad_model::load::load_dataset;
 use dyad_model::params::{ModelPriors, OrbitalParameters, PhysicalParameters};
 use dyad_model::simulate::Scenario;
 use dyad_sampler::diagnostics::autocorr_time;
-// The sampling plan of the workflows, for `fit_moves` (the mixture `dyad fit`
-// samples with); the binary's modules are not a library this example can use.
-#[allow(dead_code)]
-#[path = "../src/plan.rs"]
-mod plan;
 use dyad_sampler::{
     run, FnDensity, MemorySink, MoveMixture, Progress, RunConfig, RunControl, Start,
 };
-use plan::fit_moves;
 
 /// Observation counts of the three data sets (2 per astrometric epoch, 1 per velocity).
 const OBSERVATION_COUNTS: [usize; 3] = [20, 100, 1000];

@@ -1,5 +1,5 @@
 //! `dyad simulate SCENARIO.toml`: invented measurements of a binary with
-//! known elements, written in the input format of DESIGN.md (and read back
+//! known elements, written in the input format of docs/DESIGN.md (and read back
 //! by [`crate::load`]). The scenario keys are documented in
 //! demo-data/README.md.
 //!
