@@ -21,6 +21,7 @@ use anyhow::{bail, Context, Result};
 use clap::{Parser, Subcommand};
 use serde_json::{json, Value};
 
+use dyad_fit::plan::fit_moves;
 use dyad_model::likelihood::Model;
 use dyad_model::load::load_dataset;
 use dyad_model::params::{ModelPriors, OrbitalParameters, PhysicalParameters};
@@ -670,8 +671,7 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
             "{}; same chain as on 1 thread: {identical}",
             describe(n, &two)
         );
-        // The moves `dyad fit` uses.
-        let fit_moves = MoveMixture::stretch_and_differential_evolution();
+        let fit_moves = fit_moves();
         let mixture = sample(&model, &start, s.walkers, 1, s, &fit_moves)?;
         println!("{} (dyad fit's moves)", describe(n, &mixture));
         let mixture_two = sample(&model, &start, s.walkers, 2, s, &fit_moves)?;
@@ -703,7 +703,7 @@ fn bench(out: &Path, s: &BenchSettings) -> Result<()> {
             "chain_shape": [serial.kept_steps, s.walkers, model.dim()],
         }));
     }
-    let fit_weights = MoveMixture::stretch_and_differential_evolution().weights();
+    let fit_weights = fit_moves().weights();
     let doc = json!({
         "steps": s.steps,
         "burn_in": s.burn_in,

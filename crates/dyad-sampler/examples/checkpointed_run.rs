@@ -14,8 +14,8 @@ use std::sync::Arc;
 use std::time::Duration;
 
 use dyad_sampler::{
-    resume, run, CheckpointConfig, FileSink, FnLogPdf, Move, MoveMixture, Progress, RunConfig,
-    RunControl, Start,
+    resume, run, weighted, CheckpointConfig, DifferentialEvolution, FileSink, FnLogPdf,
+    MoveMixture, Progress, RunConfig, RunControl, Start, Stretch,
 };
 
 fn main() -> ExitCode {
@@ -60,8 +60,8 @@ fn go(folder: PathBuf, total: u64, resuming: bool) -> Result<(), dyad_sampler::S
     config.convergence = None;
     config.thin = 2;
     config.moves = MoveMixture::new(vec![
-        (Move::stretch(), 0.7),
-        (Move::differential_evolution(), 0.3),
+        weighted(Stretch::default(), 0.7),
+        weighted(DifferentialEvolution::default(), 0.3),
     ])?;
     config.checkpoint = Some(CheckpointConfig::new(
         folder.join("state.ckpt"),

@@ -3,7 +3,7 @@
 use rand::Rng;
 
 use crate::density::LogDensity;
-use crate::moves::{propose, MoveMixture, Scratch};
+use crate::moves::{propose, Complement, MoveMixture, Scratch};
 use crate::rng::{stream_rng, Stream, StreamRng};
 use crate::team::Team;
 
@@ -36,13 +36,11 @@ pub(crate) fn tempered(beta: f64, log_prior: f64, log_likelihood: f64) -> f64 {
 }
 
 impl Walker {
-    /// One Metropolis-Hastings update against the fixed complementary half
-    /// (`n_complement` walkers, the j-th at `complement(j)`).
+    /// One Metropolis-Hastings update against the fixed complementary half.
     #[inline]
-    fn advance<'c, D: LogDensity + ?Sized>(
+    fn advance<D: LogDensity + ?Sized>(
         &mut self,
-        n_complement: usize,
-        complement: impl Fn(usize) -> &'c [f64],
+        complement: &Complement<'_>,
         moves: &MoveMixture,
         density: &D,
         beta: f64,
@@ -51,7 +49,6 @@ impl Walker {
         let log_factor = propose(
             moves,
             &self.position,
-            n_complement,
             complement,
             &mut self.rng,
             &mut self.scratch,
@@ -113,10 +110,14 @@ impl EnsembleView {
     ) {
         let (walkers, order, half) = (self.walkers, self.order, self.half);
         let other = (1 - part) * half;
-        // The active walker and the complement are disjoint (a permutation).
-        let complement = |j: usize| (*walkers.add(*order.add(other + j))).position.as_slice();
+        // The active walker and the complement are disjoint (`order` is a
+        // permutation), and nobody writes the other half during this
+        // half-step (this function's contract), so the complement may be
+        // read while the active walker is written.
+        let complement =
+            Complement::new(walkers, std::slice::from_raw_parts(order.add(other), half));
         let active = &mut *walkers.add(*order.add(part * half + w));
-        active.advance(half, complement, moves, density, self.beta);
+        active.advance(&complement, moves, density, self.beta);
     }
 }
 

@@ -65,7 +65,10 @@ pub mod tempering;
 pub use density::{FnDensity, FnLogPdf, LogDensity};
 pub use error::SamplerError;
 pub use init::{check_initial_ensemble, ensemble_rank, DrawFn, Start};
-pub use moves::{Move, MoveMixture};
+pub use moves::{
+    weighted, BoxedClone, Complement, DifferentialEvolution, EnsembleMove, MoveBuffers,
+    MoveMixture, Stretch, Walk,
+};
 pub use rng::StreamRng;
 pub use run::{
     checkpoint_step, resume, run, CheckpointConfig, Convergence, ConvergenceCheck, Progress,

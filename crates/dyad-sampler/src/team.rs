@@ -306,7 +306,7 @@ mod tests {
     use super::*;
     use crate::density::FnLogPdf;
     use crate::ensemble::{step_all, Schedule};
-    use crate::moves::{Move, Scratch};
+    use crate::moves::{weighted, Scratch, Stretch, Walk};
     use crate::rng::{stream_rng, Stream};
 
     /// Three rungs of 12 walkers in 3-D, spread deterministically.
@@ -348,7 +348,11 @@ mod tests {
     #[test]
     fn team_steps_equal_serial_steps() {
         let density = FnLogPdf::new(3, |x: &[f64]| -0.5 * x.iter().map(|v| v * v).sum::<f64>());
-        let moves = MoveMixture::new(vec![(Move::stretch(), 0.6), (Move::walk(), 0.4)]).unwrap();
+        let moves = MoveMixture::new(vec![
+            weighted(Stretch::default(), 0.6),
+            weighted(Walk::default(), 0.4),
+        ])
+        .unwrap();
         let mut serial = rungs();
         let alone = Team::new(0, 3);
         for step in 0..50 {

@@ -6,7 +6,8 @@ use std::cell::Cell;
 
 use crate::common::Gaussian;
 use dyad_sampler::{
-    run, Move, MoveMixture, Progress, RunConfig, RunControl, SampleSink, SamplerError, Start,
+    run, weighted, DifferentialEvolution, MoveMixture, Progress, RunConfig, RunControl, SampleSink,
+    SamplerError, Start, Stretch, Walk,
 };
 
 pub struct CountingAllocator;
@@ -52,9 +53,9 @@ fn allocation_trace(parallel: bool) -> Vec<u64> {
     config.history_capacity = 64;
     config.thin = 7;
     config.moves = MoveMixture::new(vec![
-        (Move::stretch(), 1.0),
-        (Move::differential_evolution(), 1.0),
-        (Move::walk(), 1.0),
+        weighted(Stretch::default(), 1.0),
+        weighted(DifferentialEvolution::default(), 1.0),
+        weighted(Walk::default(), 1.0),
     ])
     .unwrap();
     let start = Start::Ball {

@@ -11,6 +11,7 @@ static COUNTING: alloc::CountingAllocator = alloc::CountingAllocator;
 
 mod bounded;
 mod burn_in;
+mod checkpoint_format;
 mod curved;
 mod diagnosis;
 mod gaussian;

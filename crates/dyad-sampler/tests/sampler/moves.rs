@@ -2,7 +2,10 @@
 //! a general-purpose ensemble sampler tests its moves; common practice).
 
 use crate::common::*;
-use dyad_sampler::{run, MemorySink, Move, MoveMixture, RunConfig, RunControl, RunStatus, Start};
+use dyad_sampler::{
+    run, weighted, DifferentialEvolution, MemorySink, MoveMixture, RunConfig, RunControl,
+    RunStatus, Start, Stretch, Walk,
+};
 
 fn check_move(mixture: MoveMixture, seed: u64) {
     let d = 4;
@@ -46,25 +49,25 @@ fn check_move(mixture: MoveMixture, seed: u64) {
 
 #[test]
 fn stretch_move_alone() {
-    check_move(MoveMixture::single(Move::stretch()), 1);
+    check_move(MoveMixture::single(Stretch::default()), 1);
 }
 
 #[test]
 fn differential_evolution_move_alone() {
-    check_move(MoveMixture::single(Move::differential_evolution()), 2);
+    check_move(MoveMixture::single(DifferentialEvolution::default()), 2);
 }
 
 #[test]
 fn walk_move_alone() {
-    check_move(MoveMixture::single(Move::Walk { subset: Some(5) }), 3);
+    check_move(MoveMixture::single(Walk { subset: Some(5) }), 3);
 }
 
 #[test]
 fn weighted_mixture_of_all_moves() {
     let m = MoveMixture::new(vec![
-        (Move::stretch(), 0.6),
-        (Move::differential_evolution(), 0.3),
-        (Move::walk(), 0.1),
+        weighted(Stretch::default(), 0.6),
+        weighted(DifferentialEvolution::default(), 0.3),
+        weighted(Walk::default(), 0.1),
     ])
     .unwrap();
     check_move(m, 4);
@@ -73,8 +76,53 @@ fn weighted_mixture_of_all_moves() {
 #[test]
 fn mixture_rejects_bad_weights_and_parameters() {
     assert!(MoveMixture::new(vec![]).is_err());
-    assert!(MoveMixture::new(vec![(Move::stretch(), 0.0)]).is_err());
-    assert!(MoveMixture::new(vec![(Move::stretch(), -1.0)]).is_err());
-    assert!(MoveMixture::new(vec![(Move::Stretch { a: 1.0 }, 1.0)]).is_err());
-    assert!(MoveMixture::new(vec![(Move::Walk { subset: Some(1) }, 1.0)]).is_err());
+    assert!(MoveMixture::new(vec![weighted(Stretch::default(), 0.0)]).is_err());
+    assert!(MoveMixture::new(vec![weighted(Stretch::default(), -1.0)]).is_err());
+    assert!(MoveMixture::new(vec![weighted(Stretch { a: 1.0 }, 1.0)]).is_err());
+    assert!(MoveMixture::new(vec![weighted(Walk { subset: Some(1) }, 1.0)]).is_err());
+}
+
+/// A move written outside the crate, through the `EnsembleMove` trait: a
+/// symmetric Gaussian random-walk step (Metropolis et al. 1953, J. Chem.
+/// Phys. 21, 1087: a symmetric proposal has Metropolis-Hastings factor 1),
+/// which needs no complementary walker.
+#[derive(Clone, Debug, serde::Serialize)]
+struct GaussianStep {
+    scale: f64,
+}
+
+impl dyad_sampler::EnsembleMove for GaussianStep {
+    fn name(&self) -> &'static str {
+        "gaussian_step"
+    }
+    fn walkers_needed(&self) -> usize {
+        0
+    }
+    fn propose(
+        &self,
+        x: &[f64],
+        _: &dyad_sampler::Complement<'_>,
+        rng: &mut dyad_sampler::StreamRng,
+        proposal: &mut [f64],
+        _: &mut dyad_sampler::MoveBuffers,
+    ) -> f64 {
+        use rand::Rng;
+        for (y, &xi) in proposal.iter_mut().zip(x) {
+            *y = xi + self.scale * rng.sample::<f64, _>(rand_distr::StandardNormal);
+        }
+        0.0
+    }
+    fn state(&self) -> serde_json::Value {
+        serde_json::to_value(self).unwrap()
+    }
+}
+
+#[test]
+fn a_move_from_outside_the_crate_samples_the_target() {
+    let m = MoveMixture::new(vec![
+        weighted(Stretch::default(), 0.5),
+        weighted(GaussianStep { scale: 0.3 }, 0.5),
+    ])
+    .unwrap();
+    check_move(m, 5);
 }

@@ -7,9 +7,9 @@ use std::time::Duration;
 
 use crate::common::Gaussian;
 use dyad_sampler::{
-    checkpoint_step, resume, run, CheckpointConfig, FileSink, MemorySink, Move, MoveMixture,
-    Progress, RecordTable, RunConfig, RunControl, RunResult, RunStatus, SampleSink, SamplerError,
-    Start, TemperingConfig,
+    checkpoint_step, resume, run, weighted, CheckpointConfig, DifferentialEvolution, FileSink,
+    MemorySink, MoveMixture, Progress, RecordTable, RunConfig, RunControl, RunResult, RunStatus,
+    SampleSink, SamplerError, Start, Stretch, TemperingConfig, Walk,
 };
 
 fn target() -> Gaussian {
@@ -20,9 +20,9 @@ fn config() -> RunConfig {
     let mut c = RunConfig::new(16, 77, 600);
     c.convergence = None;
     c.moves = MoveMixture::new(vec![
-        (Move::stretch(), 0.5),
-        (Move::differential_evolution(), 0.3),
-        (Move::walk(), 0.2),
+        weighted(Stretch::default(), 0.5),
+        weighted(DifferentialEvolution::default(), 0.3),
+        weighted(Walk::default(), 0.2),
     ])
     .unwrap();
     c.thin = 3;
