@@ -1,5 +1,5 @@
 //! Run-configuration errors name the file and the dotted key (our own
-//! design rule, DESIGN.md "Inputs": "Bad input gets a clear error naming the
+//! design rule, docs/DESIGN.md "Inputs": "Bad input gets a clear error naming the
 //! file, line and column"), and a good file loads with paths relative to
 //! its folder.
 

@@ -12,7 +12,7 @@ use dyad_model::simulate::{run_scenario_file, Scenario};
 /// J. Meeus, Astronomical Algorithms (2nd ed., 1998), Example 57.a: eta
 /// Coronae Borealis, P = 41.623 yr, T = 1934.008, e = 0.2763, a = 0.907",
 /// i = 59.025 deg, Omega = 23.717 deg, omega = 219.907 deg. At 1980.0 the
-/// book prints theta = 318.4 deg, rho = 0.411"; REFERENCE-VALUES.md gives the
+/// book prints theta = 318.4 deg, rho = 0.411"; docs/REFERENCE-VALUES.md gives the
 /// full-precision values 318.42426 deg and 0.4110178". The book's epochs are
 /// decimal years used directly, so the scenario uses jyear with P in years.
 const MEEUS: &str = r#"
