@@ -546,7 +546,7 @@ fn read_sampler(t: &Table<'_>, raw: &RawSampler) -> Result<SamplerSettings, Mode
     }
     let d = SamplerSettings::default();
     let walkers = value(&raw.walkers).map_or(d.walkers, |v| v.0 as usize);
-    if walkers % 2 != 0 {
+    if !walkers.is_multiple_of(2) {
         return Err(t.error(
             "walkers",
             &raw.walkers,
