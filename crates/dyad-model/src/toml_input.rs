@@ -10,7 +10,6 @@
 //! the string \"x\"").
 
 use std::fmt;
-use std::marker::PhantomData;
 use std::ops::Range;
 use std::path::Path;
 
@@ -305,7 +304,7 @@ pub(crate) enum FileNames {
 
 impl<'de> Deserialize<'de> for FileNames {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        struct FileNamesVisitor(PhantomData<FileNames>);
+        struct FileNamesVisitor;
         impl<'de> Visitor<'de> for FileNamesVisitor {
             type Value = FileNames;
             fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
@@ -322,7 +321,7 @@ impl<'de> Deserialize<'de> for FileNames {
                 Ok(FileNames::Many(out))
             }
         }
-        deserializer.deserialize_any(FileNamesVisitor(PhantomData))
+        deserializer.deserialize_any(FileNamesVisitor)
     }
 }
 

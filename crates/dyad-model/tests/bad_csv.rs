@@ -413,6 +413,46 @@ fn cases() -> Vec<Case> {
             needles: &["implausibly small"],
         },
         Case {
+            what: "error in a file with a byte-order mark and CRLF line ends",
+            kind: A,
+            content: bytes!("\u{feff}# invented\r\n", polar!(), "\r\n", "2451545.0, 100, 1, 10, 1\r\n", "2451546.0, 100, -1, 10, 1\r\n"),
+            line: Some(4),
+            column: Some("sep_err_mas"),
+            needles: &["an error must be positive, got -1"],
+        },
+        Case {
+            what: "quoted field with a comma before a bad field",
+            kind: A,
+            content: bytes!("jd, sep_mas, sep_err_mas, pa_deg, source, pa_err_deg\n", "2451545.0, 100, 1, 10, \"speckle, 4 m\", NaN\n"),
+            line: Some(2),
+            column: Some("pa_err_deg"),
+            needles: &["'NaN' is not a finite number"],
+        },
+        Case {
+            what: "comment lines with quotes and commas are skipped whole",
+            kind: V,
+            content: bytes!("# the \"best, night\n", "  # indented, \"too\n", rv!(), "\n", "2451545.0, 10, 0.1, primary, coude\n", "2451546.0, 10, 0.1, tertiary, coude\n"),
+            line: Some(5),
+            column: Some("star"),
+            needles: &["unknown star 'tertiary'"],
+        },
+        Case {
+            what: "quote closed on a later line",
+            kind: V,
+            content: bytes!(rv!(), "\n", "2451545.0, 10, 0.1, primary, \"coude\n", "north\"\n"),
+            line: Some(2),
+            column: None,
+            needles: &["never closed"],
+        },
+        Case {
+            what: "unknown unit of a velocity error",
+            kind: V,
+            content: bytes!("jd, rv_kms, rv_err_kmh, star, instrument\n", "2451545.0, 10, 0.1, primary, coude\n"),
+            line: Some(1),
+            column: Some("rv_err_kmh"),
+            needles: &["unknown unit 'kmh'", "rv_err_kms or rv_err_ms"],
+        },
+        Case {
             what: "no position columns at all",
             kind: A,
             content: bytes!("jd, corr\n", "2451545.0, 0.1\n"),
@@ -531,6 +571,24 @@ fn polar_values_are_converted() {
     assert_eq!(sep_mas, 0.0);
     assert!(pa_rad == 0.0 && pa_rad.is_sign_positive());
     assert_eq!(epochs[1].source, None);
+}
+
+#[test]
+fn quoting_follows_csv_with_blanks_allowed_before_a_quote() {
+    // RFC 4180 quoting (a doubled quote inside quotes is one quote), read by
+    // the csv crate; blanks around fields and before an opening quote are
+    // ours to allow; a quote inside an unquoted field is text.
+    let text = "jd,sep_mas,sep_err_mas,pa_deg,pa_err_deg,source\n\
+                2451545.0,100,1,10,1,\"a, \"\"b\"\"\"\n\
+                2451546.0,100,1,10,1,\t  \"c,d\"  \n\
+                2451547.0,100,1,10,1,  4\" refractor\n\
+                2451548.0,100,1,10,1,\n";
+    let epochs = load_astrometry_from_reader(text.as_bytes(), Path::new("q.csv")).unwrap();
+    let sources: Vec<Option<&str>> = epochs.iter().map(|e| e.source.as_deref()).collect();
+    assert_eq!(
+        sources,
+        [Some("a, \"b\""), Some("c,d"), Some("4\" refractor"), None]
+    );
 }
 
 #[test]

@@ -44,4 +44,9 @@ impl ReportError {
             source,
         }
     }
+
+    /// A CSV writing error at a path (the csv crate fails only on I/O here).
+    pub(crate) fn csv(path: impl Into<PathBuf>, source: csv::Error) -> Self {
+        Self::io(path, source.into())
+    }
 }

@@ -359,28 +359,29 @@ pub fn write_samples_csv(
     }
     let n_params = draws.n_params();
     write_atomically(path, |w| {
-        let io = |e| ReportError::io(path, e);
-        w.write_all(names.join(",").as_bytes()).map_err(io)?;
-        w.write_all(b"\n").map_err(io)?;
-        let mut line = String::with_capacity(24 * (n_params + 1));
+        let mut out = crate::tables::csv_writer(w);
+        let csv = |e| ReportError::csv(path, e);
+        out.write_record(&names).map_err(csv)?;
+        // Debug formatting of f64 is the shortest string that parses back
+        // to the same bits; one reused buffer keeps the per-row loop free of
+        // allocations.
+        let mut cell = String::with_capacity(24);
         for (d, lp) in draws.log_posterior.iter().enumerate() {
-            line.clear();
-            // Debug formatting of f64 is the shortest string that parses
-            // back to the same bits; writing into one reused buffer keeps
-            // the per-row loop free of allocations.
-            for v in &draws.values[d * n_params..(d + 1) * n_params] {
-                let _ = write!(line, "{v:?},");
+            for v in draws.values[d * n_params..(d + 1) * n_params]
+                .iter()
+                .chain([lp])
+            {
+                cell.clear();
+                let _ = write!(cell, "{v:?}");
+                out.write_field(&cell).map_err(csv)?;
             }
-            match modes {
-                Some(m) => {
-                    let _ = writeln!(line, "{lp:?},{}", m[d]);
-                }
-                None => {
-                    let _ = writeln!(line, "{lp:?}");
-                }
+            if let Some(m) = modes {
+                cell.clear();
+                let _ = write!(cell, "{}", m[d]);
+                out.write_field(&cell).map_err(csv)?;
             }
-            w.write_all(line.as_bytes()).map_err(io)?;
+            out.write_record(None::<&[u8]>).map_err(csv)?;
         }
-        Ok(())
+        out.flush().map_err(|e| ReportError::io(path, e))
     })
 }

@@ -77,13 +77,12 @@ pub const RESIDUAL_COLUMNS: [&str; 25] = [
     "chi_square",
 ];
 
-/// A CSV field, quoted when it holds a comma, quote or line break (RFC 4180).
-fn csv_field(s: &str) -> String {
-    if s.contains([',', '"', '\n', '\r']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
-    }
+/// A CSV writer for our tables: comma-separated, `\n` line ends, a field
+/// quoted only when it needs it (RFC 4180).
+pub(crate) fn csv_writer(w: &mut dyn std::io::Write) -> csv::Writer<&mut dyn std::io::Write> {
+    csv::WriterBuilder::new()
+        .terminator(csv::Terminator::Any(b'\n'))
+        .from_writer(w)
 }
 
 /// The cells of one residual row: the measured form's five columns
@@ -108,7 +107,7 @@ fn residual_cells(r: &AstrometryResidualRow) -> Vec<String> {
     let mut cells = vec![
         num(r.t_jd),
         num(r.t_jyear),
-        csv_field(&r.source),
+        r.source.clone(),
         match r.form {
             MeasuredForm::Polar => "polar".to_string(),
             MeasuredForm::Cartesian => "cartesian".to_string(),
@@ -127,14 +126,13 @@ pub fn write_astrometry_residuals_csv(
     rows: &[AstrometryResidualRow],
 ) -> Result<(), ReportError> {
     write_atomically(path, |w| {
-        let io = |e| ReportError::io(path, e);
-        let mut text = RESIDUAL_COLUMNS.join(",");
-        text.push('\n');
+        let mut out = crate::tables::csv_writer(w);
+        let csv = |e| ReportError::csv(path, e);
+        out.write_record(RESIDUAL_COLUMNS).map_err(csv)?;
         for r in rows {
-            text.push_str(&residual_cells(r).join(","));
-            text.push('\n');
+            out.write_record(residual_cells(r)).map_err(csv)?;
         }
-        w.write_all(text.as_bytes()).map_err(io)
+        out.flush().map_err(|e| ReportError::io(path, e))
     })
 }
 
@@ -413,10 +411,21 @@ mod tests {
         };
         let cells = residual_cells(&row);
         assert_eq!(cells.len(), RESIDUAL_COLUMNS.len());
-        assert_eq!(cells[2], "\"speckle, \"\"4 m\"\"\"");
+        assert_eq!(cells[2], "speckle, \"4 m\"");
         assert_eq!(cells[3], "cartesian");
         assert!(cells[4..14].iter().all(String::is_empty));
         assert_eq!(&cells[14..19], ["10.0", "9.0", "1.0", "2.0", "0.5"]);
         assert_eq!(cells[23], "-0.25");
+        // Written with the source quoted as RFC 4180 says.
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("residuals.csv");
+        write_astrometry_residuals_csv(&path, &[row]).unwrap();
+        let text = std::fs::read_to_string(&path).unwrap();
+        let line = text.lines().nth(1).unwrap();
+        assert!(
+            line.starts_with("2451545.0,2000.0,\"speckle, \"\"4 m\"\"\",cartesian,,"),
+            "{line}"
+        );
+        assert!(text.ends_with(",0.3125\n"), "{text}");
     }
 }
