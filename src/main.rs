@@ -11,27 +11,11 @@
 // table of the configuration file, not a documentation link.
 #![allow(rustdoc::broken_intra_doc_links)]
 
-mod advise;
-mod astrometry_views;
-mod calibrate;
-mod check;
-mod density;
-mod error_summary;
-mod fit;
-mod modes;
-mod paper_table;
-mod periods;
-mod plan;
-mod posterior;
-mod predict;
-mod progress;
-mod run_folder;
-mod terminal;
+use dyad_fit::{advise, calibrate, check, fit, periods, posterior, predict, terminal};
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-use crate::terminal::{note, say};
 use anyhow::{Context, Result};
 use clap::{Parser, Subcommand};
 
@@ -303,7 +287,7 @@ fn run(cli: Cli) -> Result<()> {
             let written = dyad_model::simulate::run_scenario_file(&scenario, overwrite)
                 .with_context(|| format!("simulating {}", scenario.display()))?;
             for file in written {
-                say!("wrote {}", file.display())?;
+                terminal::write_line(&format!("wrote {}", file.display()))?;
             }
             Ok(())
         }
@@ -317,7 +301,7 @@ fn main() -> ExitCode {
         // has what it wanted, so end quietly and successfully.
         Err(e) if terminal::is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
-            note!("error: {e:#}");
+            terminal::write_note(&format!("error: {e:#}"));
             ExitCode::FAILURE
         }
     }

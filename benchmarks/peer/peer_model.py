@@ -10,7 +10,7 @@ samples.
 What it is not for: anything but this benchmark (no other priors, no
 astrometry-only or velocity-only modes, no Cartesian astrometry).
 
-Sources of the equations (all also in dyad's /work/shared/DESIGN.md):
+Sources of the equations (all also in dyad's docs/DESIGN.md):
 - Thiele-Innes constants and the elliptic rectangular coordinates
   X = cos E - e, Y = sqrt(1 - e^2) sin E (W. D. Heintz, Double Stars, 1978).
 - Line-of-sight velocity shape cos(nu + omega) + e cos omega and

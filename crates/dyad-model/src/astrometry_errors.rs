@@ -14,7 +14,7 @@
 //!
 //! The covariance of an epoch is then C = s^2 C_quoted + j^2 diag(1, g)
 //! with g = 1 / rho_obs^2 (polar) or 1 (Cartesian). The residual r
-//! (DESIGN.md, as in [`crate::likelihood`]) follows either
+//! (docs/DESIGN.md, as in [`crate::likelihood`]) follows either
 //!
 //! - the bivariate normal, ln p = -ln(2 pi) - 0.5 ln det C - 0.5 Q, or
 //! - the bivariate Student t with nu degrees of freedom and scale matrix C

@@ -5,7 +5,7 @@
 //! Relations: Kepler's third law and the spectroscopic-binary relations of
 //! `dyad_orbit::laws` (Hilditch, An Introduction to Close Binary Stars,
 //! 2001, ch. 2); M1 = M / (1 + q), M2 = q M / (1 + q); the primary's
-//! spectroscopic argument of periastron is omega + 180 deg (DESIGN.md).
+//! spectroscopic argument of periastron is omega + 180 deg (docs/DESIGN.md).
 
 use dyad_orbit::constants::JULIAN_YEAR_DAYS;
 use dyad_orbit::{laws, Orbit, SkyOffset, TimeScale};

@@ -10,6 +10,8 @@ pub struct Location {
     pub file: PathBuf,
     /// 1-based line number, when known.
     pub line: Option<usize>,
+    /// 1-based character position within the line, when known (TOML).
+    pub position: Option<usize>,
     /// Column name (CSV) or dotted key (TOML), when known.
     pub column: Option<String>,
 }
@@ -20,8 +22,14 @@ impl std::fmt::Display for Location {
         if let Some(line) = self.line {
             write!(f, ", line {line}")?;
         }
-        if let Some(column) = &self.column {
-            write!(f, ", column '{column}'")?;
+        if let Some(position) = self.position {
+            write!(f, ", column {position}")?;
+        }
+        match (&self.column, self.position) {
+            // With a character position the name is a TOML key.
+            (Some(key), Some(_)) => write!(f, ", key '{key}'")?,
+            (Some(column), None) => write!(f, ", column '{column}'")?,
+            (None, _) => {}
         }
         Ok(())
     }
@@ -68,7 +76,27 @@ impl ModelError {
             location: Location {
                 file: file.into(),
                 line,
+                position: None,
                 column: column.map(str::to_owned),
+            },
+            message: message.into(),
+        }
+    }
+
+    /// An input error at a place in a TOML file: 1-based line and
+    /// character position when known, and the dotted key.
+    pub fn at_key(
+        file: impl Into<PathBuf>,
+        line_position: Option<(usize, usize)>,
+        key: &str,
+        message: impl Into<String>,
+    ) -> Self {
+        ModelError::Input {
+            location: Location {
+                file: file.into(),
+                line: line_position.map(|(line, _)| line),
+                position: line_position.map(|(_, position)| position),
+                column: Some(key.to_owned()),
             },
             message: message.into(),
         }

@@ -55,6 +55,6 @@ pub mod params;
 pub mod prior;
 pub mod simulate;
 pub mod start;
-mod toml_walk;
+mod toml_input;
 
 pub use error::ModelError;

@@ -18,7 +18,7 @@
 //! a_mas = a_au * parallax; positions from `dyad_orbit::Orbit`; the relative
 //! semi-amplitude K from `laws::relative_semi_amplitude_kms` and the stars'
 //! velocities from `velocity::{primary_velocity, secondary_velocity}`
-//! (DESIGN.md "Kinematics"). With velocities alone, v1 = gamma - K1 * shape
+//! (docs/DESIGN.md "Kinematics"). With velocities alone, v1 = gamma - K1 * shape
 //! and v2 = gamma + K2 * shape.
 //!
 //! Nothing is allocated per call: inverse covariances and normalising

@@ -3,7 +3,7 @@
 //! The sampler moves in well-conditioned coordinates; priors are stated on
 //! the physical quantities. Each sampled coordinate, its map to physics and
 //! the Jacobian that turns the physical prior density into a density in the
-//! sampled coordinates are listed here (DESIGN.md "Parameters").
+//! sampled coordinates are listed here (docs/DESIGN.md "Parameters").
 //!
 //! # The coordinates
 //!

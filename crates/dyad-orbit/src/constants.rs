@@ -37,7 +37,7 @@ pub const DEG: f64 = PI / 180.0;
 
 /// GM_sun in au^3 per Julian year squared (from the two IAU values above).
 ///
-/// REFERENCE-VALUES.md: 39.4769264089.
+/// docs/REFERENCE-VALUES.md: 39.4769264089.
 pub const GM_SUN_AU3_YR2: f64 =
     GM_SUN_M3_S2 / (AU_M * AU_M * AU_M) * (JULIAN_YEAR_S * JULIAN_YEAR_S);
 

@@ -1,6 +1,6 @@
 //! Campbell elements of the relative orbit and the Thiele-Innes constants.
 //!
-//! Conventions (DESIGN.md):
+//! Conventions (docs/DESIGN.md):
 //! - The relative orbit is that of the secondary about the primary;
 //!   `omega_rad` is the secondary's argument of periastron (the primary's
 //!   spectroscopic omega is `omega + pi`).
@@ -10,7 +10,7 @@
 //! - `inc_rad` in [0, pi]: i < 90 deg is direct motion (position angle
 //!   increasing with time), i > 90 deg retrograde.
 //! - Thiele-Innes constants (e.g. W. D. Heintz, Double Stars, 1978, ch. 5;
-//!   DESIGN.md): A = a(cos w cos W - sin w sin W cos i),
+//!   docs/DESIGN.md): A = a(cos w cos W - sin w sin W cos i),
 //!   B = a(cos w sin W + sin w cos W cos i), F = a(-sin w cos W - cos w sin W cos i),
 //!   G = a(-sin w sin W + cos w cos W cos i), so that with X = cos E - e and
 //!   Y = sqrt(1-e^2) sin E the offsets are dDec = A X + F Y (north) and

@@ -33,13 +33,13 @@ pub fn semi_major_axis_au(total_mass_msun: f64, period_days: f64) -> f64 {
 }
 
 /// Total mass from the angular semi-major axis and the parallax (same angular
-/// unit, e.g. mas): a_au = a / parallax (DESIGN.md).
+/// unit, e.g. mas): a_au = a / parallax (docs/DESIGN.md).
 pub fn total_mass_from_angular(a_mas: f64, parallax_mas: f64, period_days: f64) -> f64 {
     total_mass_msun(a_mas / parallax_mas, period_days)
 }
 
 /// Semi-amplitude of the relative line-of-sight velocity in km/s,
-/// `K = 2 pi a sin i / (P sqrt(1-e^2))` (DESIGN.md; e.g. Hilditch 2001, ch. 2).
+/// `K = 2 pi a sin i / (P sqrt(1-e^2))` (docs/DESIGN.md; e.g. Hilditch 2001, ch. 2).
 pub fn relative_semi_amplitude_kms(a_au: f64, period_days: f64, e: f64, inc_rad: f64) -> f64 {
     2.0 * PI * a_au * AU_KM * inc_rad.sin() / (period_days * DAY_S * (1.0 - e * e).sqrt())
 }

@@ -31,6 +31,7 @@
 //! assert!(p.separation() > 0.0 && p.separation() < 130.0 * 1.0001);
 //! ```
 #![deny(missing_docs)]
+#![deny(unsafe_op_in_unsafe_fn)]
 
 pub mod constants;
 pub mod elements;

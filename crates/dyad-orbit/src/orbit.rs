@@ -1,6 +1,6 @@
 //! Positions on the sky and the line-of-sight velocity shape of an orbit.
 //!
-//! Conventions (DESIGN.md), all in one place:
+//! Conventions (docs/DESIGN.md), all in one place:
 //! - Offsets of the secondary from the primary: `ddec` towards North,
 //!   `dra` = dRA cos(Dec) towards East, in the unit of the semi-major axis.
 //! - Position angle theta from North through East: ddec = rho cos theta,
@@ -265,6 +265,10 @@ impl Orbit {
     /// [`Orbit::for_each_block`] with the solver's AVX2 kernel; the same
     /// operations in the same order, so bit for bit the same results as the
     /// portable path.
+    ///
+    /// # Safety
+    /// The processor must have AVX2 and FMA ([`crate::kepler::has_avx2_fma`]):
+    /// the body, with the AVX2 kernel inlined into it, is compiled for them.
     #[cfg(target_arch = "x86_64")]
     #[target_feature(enable = "avx2,fma")]
     unsafe fn for_each_block_avx2<V: BlockVisitor>(&self, times_jd: &[f64], visitor: &mut V) {
@@ -357,7 +361,8 @@ impl LaneSolver for Avx2 {
     #[inline(always)]
     fn solve_lanes(solver: &KeplerSolver, m: &[f64; LANES]) -> Solved<LANES> {
         // SAFETY: `Avx2` is only used by `Orbit::for_each_block_avx2`,
-        // which runs where AVX2 and FMA are present.
+        // which is compiled for AVX2 and FMA and only called where they
+        // are present (checked by `Orbit::for_each_block`).
         unsafe { solver.solve_lanes_avx2(m) }
     }
     #[inline(always)]

@@ -3,7 +3,7 @@
 //! Radial velocity is positive for a receding star. The relative velocity
 //! `v_rel` is that of the secondary with respect to the primary,
 //! `v_rel = K * rv_shape` (see [`crate::orbit::OrbitState::rv_shape`]). With
-//! the mass ratio q = M2/M1 the centre of mass stays put, so (DESIGN.md)
+//! the mass ratio q = M2/M1 the centre of mass stays put, so (docs/DESIGN.md)
 //! `v1 = gamma - q/(1+q) v_rel` and `v2 = gamma + 1/(1+q) v_rel`.
 
 /// Velocity of the primary: `gamma - q/(1+q) * v_rel`.

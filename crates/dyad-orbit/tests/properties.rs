@@ -197,7 +197,7 @@ proptest! {
     }
 
     // i < 90 deg: position angle increases with time; i > 90 deg: decreases
-    // (DESIGN.md; d theta/dt = h cos i / rho^2 by the area law).
+    // (docs/DESIGN.md; d theta/dt = h cos i / rho^2 by the area law).
     #[test]
     fn direct_motion_for_low_inclination(mut el in elements(), frac in 0.0f64..1.0, low in 0.0f64..(85.0f64.to_radians())) {
         el.e = el.e.min(0.9);
@@ -214,7 +214,7 @@ proptest! {
     }
 
     // At the ascending node (nu + omega = 0) the secondary lies at position
-    // angle Omega and recedes (DESIGN.md convention).
+    // angle Omega and recedes (docs/DESIGN.md convention).
     #[test]
     fn ascending_node_is_receding(el in elements()) {
         prop_assume!(el.inc_rad > 0.05 && el.inc_rad < PI - 0.05);

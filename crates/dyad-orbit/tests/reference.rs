@@ -1,5 +1,5 @@
 //! Checks against published values; the source is named beside each check.
-//! Values quoted from /work/shared/REFERENCE-VALUES.md unless said otherwise.
+//! Values quoted from docs/REFERENCE-VALUES.md unless said otherwise.
 
 use dyad_orbit::constants::{AU_KM, DEG, GM_SUN_AU3_YR2, KEPLER_THIRD_LAW_FACTOR};
 use dyad_orbit::kepler::reduce_mean_anomaly;
@@ -34,7 +34,7 @@ fn meeus_ch30_high_eccentricity() {
 
 #[test]
 fn kepler_e075_m70() {
-    // REFERENCE-VALUES.md: e = 0.75, M = 70 deg -> E = 110.302228 deg
+    // docs/REFERENCE-VALUES.md: e = 0.75, M = 70 deg -> E = 110.302228 deg
     // (computed there by Newton iteration to 1e-15; no book value).
     let sol = solve_kepler(70.0 * DEG, 0.75);
     assert_close(sol.e_anom / DEG, 110.302_228, 5e-7, "E (deg)");
@@ -68,7 +68,7 @@ fn reduction_of_large_mean_anomalies() {
 fn meeus_example_57a_eta_crb() {
     // Meeus (1998) Example 57.a, eta Coronae Borealis at 1980.0: the book
     // prints theta = 318.4 deg, rho = 0.411"; full precision (computed in
-    // REFERENCE-VALUES.md): theta = 318.42426 deg, rho = 0.4110178".
+    // docs/REFERENCE-VALUES.md): theta = 318.42426 deg, rho = 0.4110178".
     // The book uses decimal years directly, so build every JD with the same
     // 365.25-day year: M = 2 pi (t - T) / P exactly as in the book.
     let year = TimeScale::JulianYear;
@@ -97,7 +97,7 @@ fn meeus_example_57a_eta_crb() {
 
 #[test]
 fn kepler_third_law_iau_nominal() {
-    // REFERENCE-VALUES.md (from IAU 2015 B3 and IAU 2012 B2):
+    // docs/REFERENCE-VALUES.md (from IAU 2015 B3 and IAU 2012 B2):
     // GM_sun = 39.4769264089 au^3/yr^2, k = 1.0000377738.
     assert_close(GM_SUN_AU3_YR2, 39.476_926_408_9, 1e-9, "GM_sun au^3/yr^2");
     assert_close(KEPLER_THIRD_LAW_FACTOR, 1.000_037_773_8, 1e-10, "k");
@@ -124,7 +124,7 @@ fn solar_reflex_ms(gm_planet: f64, period_days: f64, e: f64) -> f64 {
 
 #[test]
 fn solar_reflex_velocity_jupiter_and_earth() {
-    // Common practice (values in REFERENCE-VALUES.md): the Sun's reflex
+    // Common practice (values in docs/REFERENCE-VALUES.md): the Sun's reflex
     // semi-amplitude is 12.47 m/s due to Jupiter and 0.0895 m/s due to the Earth.
     assert_close(
         solar_reflex_ms(1.266_865_3e17, 4332.589, 0.0489),
@@ -145,7 +145,7 @@ fn spectroscopic_constants() {
     // R. W. Hilditch, An Introduction to Close Binary Stars (2001): the
     // constants 1.0361e-7 (M sin^3 i, f(M)) and 13751 (a sin i); the values
     // from the IAU 2015 B3 GM_sun are 1.036149e-7 and 13750.9871
-    // (REFERENCE-VALUES.md).
+    // (docs/REFERENCE-VALUES.md).
     assert_close(
         laws::mass_function_msun(1.0, 1.0, 0.0),
         1.036_149e-7,
@@ -182,10 +182,10 @@ fn spectroscopic_constants() {
 fn sirius_dynamical_mass() {
     // H. E. Bond et al. 2017, ApJ 840, 70, Table 4: a = 7.4957", P = 50.1284 yr,
     // M_A + M_B = 2.063 + 1.018 = 3.081 M_sun (sigma ~ 0.025); parallax
-    // 378.9 mas as in REFERENCE-VALUES.md, where (a/plx)^3/P^2 = 3.0810.
+    // 378.9 mas as in docs/REFERENCE-VALUES.md, where (a/plx)^3/P^2 = 3.0810.
     let m = laws::total_mass_from_angular(7495.7, 378.9, 50.1284 * 365.25);
     assert_close(m, 3.081, 0.025, "total mass vs published");
-    assert_close(m, 3.0810, 5e-4, "total mass vs REFERENCE-VALUES.md");
+    assert_close(m, 3.0810, 5e-4, "total mass vs docs/REFERENCE-VALUES.md");
 }
 
 #[test]

@@ -55,24 +55,18 @@ impl ParameterInfo {
         }
     }
 
-    /// The CSV column name: `name_unit`, with every character other than
-    /// ASCII letters, digits and `_` replaced by `_` (so `km/s` becomes
-    /// `km_s`), and the unit omitted when empty.
+    /// The CSV column name: the name, followed by `_unit` unless the name
+    /// already says its unit (`period_days` with unit `d` stays
+    /// `period_days`; `k1` with unit `km/s` becomes `k1_km_s`), so each unit
+    /// is written once. Every character other than ASCII letters, digits and
+    /// `_` becomes `_`; dimensionless units (empty or `1`) add nothing.
     pub fn column_name(&self) -> String {
-        let raw = if self.unit.trim().is_empty() {
-            self.name.clone()
-        } else {
-            format!("{}_{}", self.name, self.unit)
-        };
-        let mut out = String::with_capacity(raw.len());
-        for c in raw.chars() {
-            if c.is_ascii_alphanumeric() || c == '_' {
-                out.push(c);
-            } else if !out.ends_with('_') {
-                out.push('_');
-            }
+        let name = sanitised(&self.name);
+        let unit = self.unit.trim();
+        if unit.is_empty() || unit == "1" || names_unit(&name, unit) {
+            return name;
         }
-        out.trim_end_matches('_').to_string()
+        sanitised(&format!("{name}_{unit}"))
     }
 
     /// Axis text: `label [unit]`, or just the label for dimensionless numbers.
@@ -83,6 +77,44 @@ impl ParameterInfo {
             format!("{} [{}]", self.label, self.unit)
         }
     }
+}
+
+/// `text` with every run of characters other than ASCII letters, digits and
+/// `_` replaced by one `_`, and no trailing `_`.
+fn sanitised(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        if c.is_ascii_alphanumeric() || c == '_' {
+            out.push(c);
+        } else if !out.ends_with('_') {
+            out.push('_');
+        }
+    }
+    out.trim_end_matches('_').to_string()
+}
+
+/// Whether one of the `_`-separated words of a column name already spells
+/// `unit` (a log unit `ln(u)` counts as `u`): the model's names carry their
+/// units in the words we use for them, e.g. `days` and `jd` for `d`, `msun`
+/// for `M☉`, `kms` for `km/s`.
+fn names_unit(name: &str, unit: &str) -> bool {
+    let unit = unit
+        .strip_prefix("ln(")
+        .and_then(|u| u.strip_suffix(')'))
+        .unwrap_or(unit);
+    let spellings: &[&str] = match unit {
+        "d" | "JD" => &["d", "days", "jd"],
+        "yr" => &["yr", "years", "jyear", "byear"],
+        "M☉" | "M_sun" | "Msun" => &["msun"],
+        "km/s" => &["kms"],
+        "m/s" => &["ms"],
+        _ => &[],
+    };
+    let own = sanitised(unit).to_ascii_lowercase();
+    name.split('_').any(|word| {
+        let word = word.to_ascii_lowercase();
+        word == own || spellings.contains(&word.as_str())
+    })
 }
 
 /// Posterior draws of all parameters, stored draw-major:

@@ -123,7 +123,7 @@ fn pair_plot_writes_png_and_svg() {
     assert!(plot_pairs(&dir.join("bad"), "x", &d, &["nope"]).is_err());
 }
 
-/// Relative orbit by the Thiele-Innes formulas of DESIGN.md, Kepler's
+/// Relative orbit by the Thiele-Innes formulas of docs/DESIGN.md, Kepler's
 /// equation by Newton iteration.
 fn orbit_track(a: f64, e: f64, i: f64, w: f64, node: f64, n: usize) -> Vec<(f64, f64)> {
     let (ca, cb, cf, cg) = (
@@ -209,7 +209,7 @@ fn sky_plot_writes_png_and_svg() {
     assert!(plot_sky(&dir.join("empty"), &SkyPlotInput::default()).is_err());
 }
 
-/// Kepler velocity curve of DESIGN.md: v_rel = K (cos(nu + w) + e cos w).
+/// Kepler velocity curve of docs/DESIGN.md: v_rel = K (cos(nu + w) + e cos w).
 fn rv_rel(phase: f64, k: f64, e: f64, w: f64) -> f64 {
     let m = std::f64::consts::TAU * phase;
     let mut ea = m;
@@ -475,7 +475,7 @@ fn vermillion_centroid(path: &Path) -> (f64, f64) {
 
 #[test]
 fn sky_plot_puts_east_left_and_north_up() {
-    // Convention (DESIGN.md; common practice): ΔRA* > 0 is East, drawn to
+    // Convention (docs/DESIGN.md; common practice): ΔRA* > 0 is East, drawn to
     // the left of the primary; ΔDec > 0 is North, drawn above it. The view
     // is centred between the primary and the measurement, so the
     // measurement must fall in the left (upper) half.

@@ -311,3 +311,52 @@ fn run_folder_is_not_reused_unless_asked() {
         Err(ReportError::NotAFolder(_))
     ));
 }
+
+#[test]
+fn column_names_carry_each_unit_once() {
+    // Our own naming rule (README, "Reading the results"): a name that
+    // already says its unit is not given the unit again.
+    let cases = [
+        (
+            ParameterInfo::linear("period_days", "d", "P"),
+            "period_days",
+        ),
+        (
+            ParameterInfo::linear("periastron_time_jd", "d", "T"),
+            "periastron_time_jd",
+        ),
+        (
+            ParameterInfo::linear("period_years", "yr", "P"),
+            "period_years",
+        ),
+        (
+            ParameterInfo::linear("mass_primary_msun", "M☉", "M₁"),
+            "mass_primary_msun",
+        ),
+        (ParameterInfo::linear("k1_kms", "km/s", "K₁"), "k1_kms"),
+        (
+            ParameterInfo::angle("node_deg", "deg", "Ω", 180.0),
+            "node_deg",
+        ),
+        (
+            ParameterInfo::linear("sampled:ln_period_days", "ln(d)", "P"),
+            "sampled_ln_period_days",
+        ),
+        (
+            ParameterInfo::linear("sampled:offset_kms[north]", "km/s", "γ"),
+            "sampled_offset_kms_north",
+        ),
+        (
+            ParameterInfo::linear("sampled:eccentricity", "1", "e"),
+            "sampled_eccentricity",
+        ),
+        // Names without their unit still get it.
+        (ParameterInfo::linear("k1", "km/s", "K₁"), "k1_km_s"),
+        (ParameterInfo::linear("m1", "Msun", "M₁"), "m1_Msun"),
+        (ParameterInfo::linear("period", "d", "P"), "period_d"),
+        (ParameterInfo::linear("q", "", "q"), "q"),
+    ];
+    for (info, want) in cases {
+        assert_eq!(info.column_name(), want, "{info:?}");
+    }
+}

@@ -1,5 +1,5 @@
 //! Run-configuration errors name the file and the dotted key (our own
-//! design rule, DESIGN.md "Inputs": "Bad input gets a clear error naming the
+//! design rule, docs/DESIGN.md "Inputs": "Bad input gets a clear error naming the
 //! file, line and column"), and a good file loads with paths relative to
 //! its folder.
 
@@ -286,4 +286,74 @@ fn stopping_rule_bounds_are_checked() {
         "sampler.effective_draws",
         "at least 1",
     );
+}
+
+/// The whole place of an error: file, line, character column and key.
+fn expect_place(text: &str, place: &str, words: &str) {
+    let folder = Folder::new();
+    let path = folder.config(text);
+    let message = RunConfig::load(&path).unwrap_err().to_string();
+    assert!(
+        message.contains(&format!("run.toml, {place}")),
+        "no '{place}' in: {message}"
+    );
+    assert!(message.contains(words), "no '{words}' in: {message}");
+}
+
+#[test]
+fn errors_name_the_line_and_column_of_the_value() {
+    // DATA takes lines 1 to 3; the section header is line 4.
+    expect_place(
+        &format!("{DATA}[sampler]\nwalker = 10\n"),
+        "line 5, column 1, key 'sampler.walker'",
+        "allowed here: walkers, max_steps",
+    );
+    expect_place(
+        &format!("{DATA}[sampler]\nwalkers = \"many\"\n"),
+        "line 5, column 11, key 'sampler.walkers'",
+        "must be a whole number >= 4, found the string \"many\"",
+    );
+    expect_place(
+        &format!("{DATA}[sampler]\nwalkers = 33\n"),
+        "line 5, column 11, key 'sampler.walkers'",
+        "even",
+    );
+    expect_place(
+        &format!("{DATA}[sampler]\nperiod_windows_days = [[10, 20], [100, \"a\"]]\n"),
+        "line 5, column 40, key 'sampler.period_windows_days[1][1]'",
+        "must be a finite number",
+    );
+    expect_place(
+        &format!(
+            "{DATA}[priors]\nperiod_days = {{ shape = \"uniform\", min = 5000, max = 100 }}\n"
+        ),
+        "line 5, column 15, key 'priors.period_days'",
+        "less than",
+    );
+    expect_place(
+        &format!("{DATA}[priors.instruments.north]\njitter_kms = {{ shape = \"normal\", mean = 0, sdev = 1 }}\n"),
+        "line 5, column 14, key 'priors.instruments.north.jitter_kms.sdev'",
+        "unknown field 'sdev'",
+    );
+    expect_place(
+        &format!("{DATA}[astrometry_errors]\ndistribution = \"cauchy\"\n"),
+        "line 5, column 16, key 'astrometry_errors.distribution'",
+        "must be one of normal, student_t",
+    );
+    expect_place(
+        "[data]\nvelocities = [\"data/rv.csv\", \"data/gone.csv\"]\n",
+        "line 2, column 30, key 'data.velocities[1]'",
+        "not found",
+    );
+    expect_place(
+        &format!("{DATA}[start]\neccentricity = 1.5\n"),
+        "line 5, column 16, key 'start.eccentricity'",
+        "outside the allowed range [0, 1)",
+    );
+    // Retired keys are refused with their replacement but not offered.
+    let folder = Folder::new();
+    let message = RunConfig::load(&folder.config(&format!("{DATA}[sampler]\nwalker = 10\n")))
+        .unwrap_err()
+        .to_string();
+    assert!(!message.contains("autocorrelation_times"), "{message}");
 }

@@ -114,7 +114,7 @@ fn the_error_model_densities_are_normalised() {
 /// the true parallax, and agrees with the textbook relation
 /// a sin i [km] = 13750.9871 (1 - e^2)^(1/2) K P [km/s, d]
 /// (R. W. Hilditch, An Introduction to Close Binary Stars, 2001, eq. 2.46;
-/// REFERENCE-VALUES.md), parallax = a_mas sin i / (a sin i in au).
+/// docs/REFERENCE-VALUES.md), parallax = a_mas sin i / (a sin i in au).
 #[test]
 fn orbital_parallax_from_exact_velocities_is_the_true_parallax() {
     let truth = invented_physical();

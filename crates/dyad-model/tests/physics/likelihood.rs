@@ -86,11 +86,11 @@ fn likelihood_matches_hand_computation() {
     assert!((model.log_posterior(&x) - (lp + got)).abs() < 1e-12 * got.abs().max(1.0));
 }
 
-/// ln L written out independently from DESIGN.md and first principles
+/// ln L written out independently from docs/DESIGN.md and first principles
 /// (Kepler's third law, Thiele-Innes constants, the true anomaly from E),
 /// one observation at a time.
 fn hand_log_likelihood(data: &Dataset, truth: &PhysicalParameters) -> f64 {
-    // Independent computation from DESIGN.md and first principles.
+    // Independent computation from docs/DESIGN.md and first principles.
     let o = &truth.orbit;
     let (p, t0, e, w) = (o.period_days, o.t_peri_jd, o.eccentricity, o.omega_rad);
     let (inc, node, mtot, plx, q) = (
@@ -108,7 +108,7 @@ fn hand_log_likelihood(data: &Dataset, truth: &PhysicalParameters) -> f64 {
     let p_yr = p / 365.25;
     let a_au = (mtot * p_yr * p_yr * gm / (4.0 * PI * PI)).cbrt();
     let a = a_au * plx;
-    // Thiele-Innes constants (DESIGN.md).
+    // Thiele-Innes constants (docs/DESIGN.md).
     let (cw, sw, cn, sn, ci) = (w.cos(), w.sin(), node.cos(), node.sin(), inc.cos());
     let ta = a * (cw * cn - sw * sn * ci);
     let tb = a * (cw * sn + sw * cn * ci);
@@ -405,7 +405,7 @@ fn velocity_likelihood_is_the_sum_of_gaussians_for_any_number_of_instruments() {
     // Velocities alone, with 2 and with 20 instruments (the latter beyond
     // the stack cache of per-instrument terms): ln L must equal the sum of
     // normal log-densities of the residuals with sigma^2 = err^2 + s_k^2
-    // (DESIGN.md), errors varying from point to point.
+    // (docs/DESIGN.md), errors varying from point to point.
     for n_inst in [2usize, 20] {
         let mut data = Dataset {
             instruments: (0..n_inst).map(|k| format!("i{k}")).collect(),

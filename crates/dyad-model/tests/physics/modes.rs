@@ -45,7 +45,7 @@ fn derived_quantities_at_known_parameters() {
     // here are placeholders: errors::orbital_parallax_from_exact_velocities_*
     // checks it on consistent data.)
     assert!((k1 / k2 - q).abs() < 1e-12);
-    // Kepler's third law: a_au^3 / P_yr^2 * k = M (REFERENCE-VALUES.md: k = 1.0000377738).
+    // Kepler's third law: a_au^3 / P_yr^2 * k = M (docs/REFERENCE-VALUES.md: k = 1.0000377738).
     let p_yr = 3000.0 / 365.25;
     assert!((1.0000377738 * d("semi_major_axis_au").powi(3) / (p_yr * p_yr) - m).abs() < 1e-8);
     assert!((d("semi_major_axis_mas") - 40.0 * d("semi_major_axis_au")).abs() < 1e-9);
@@ -83,7 +83,7 @@ fn astrometry_alone_folds_the_node() {
     let o = model.layout().orbital(&x).unwrap();
     assert!((o.node_rad.unwrap() - (4.0 - std::f64::consts::PI)).abs() < 1e-12);
     assert!((o.omega_rad - (1.1 + std::f64::consts::PI)).abs() < 1e-12);
-    // Both members of the pair give the same positions (DESIGN.md Thiele-Innes).
+    // Both members of the pair give the same positions (docs/DESIGN.md Thiele-Innes).
     let joint_data = small_joint_dataset();
     let joint = Model::new(joint_data.clone(), &ModelPriors::defaults(&joint_data)).unwrap();
     let mut unfolded = invented_physical();

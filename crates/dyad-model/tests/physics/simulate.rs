@@ -12,7 +12,7 @@ use dyad_model::simulate::{run_scenario_file, Scenario};
 /// J. Meeus, Astronomical Algorithms (2nd ed., 1998), Example 57.a: eta
 /// Coronae Borealis, P = 41.623 yr, T = 1934.008, e = 0.2763, a = 0.907",
 /// i = 59.025 deg, Omega = 23.717 deg, omega = 219.907 deg. At 1980.0 the
-/// book prints theta = 318.4 deg, rho = 0.411"; REFERENCE-VALUES.md gives the
+/// book prints theta = 318.4 deg, rho = 0.411"; docs/REFERENCE-VALUES.md gives the
 /// full-precision values 318.42426 deg and 0.4110178". The book's epochs are
 /// decimal years used directly, so the scenario uses jyear with P in years.
 const MEEUS: &str = r#"
@@ -271,5 +271,37 @@ fn demo_scenarios_reproduce_the_shipped_files() {
                 file.display()
             );
         }
+    }
+}
+
+#[test]
+fn scenario_errors_name_the_line_and_column() {
+    // Lines and columns counted in SMALL (its first line is empty).
+    let path = Path::new("bad.toml");
+    let cases = [
+        (
+            SMALL.replace("eccentricity = 0.35", "eccentricity = 1.5"),
+            "bad.toml, line 8, column 16, key 'system.eccentricity'",
+            "must be in [0, 1)",
+        ),
+        (
+            SMALL.replace("form = \"cartesian\"", "form = \"sideways\""),
+            "bad.toml, line 19, column 8, key 'astrometry.form'",
+            "must be one of polar, cartesian, got \"sideways\"",
+        ),
+        (
+            SMALL.replace(
+                "stars = [\"primary\"]",
+                "stars = [\"primary\", \"tertiary\"]",
+            ),
+            "bad.toml, line 39, column 21, key 'velocities.instruments[1].stars[1]'",
+            "must be one of primary, secondary",
+        ),
+    ];
+    for (text, place, words) in cases {
+        let err = Scenario::from_toml_str(&text.replace("NOISE", "true"), path)
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains(place) && err.contains(words), "{place}: {err}");
     }
 }

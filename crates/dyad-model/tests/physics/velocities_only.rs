@@ -60,7 +60,7 @@ fn a_known_inclination_turns_minimum_masses_into_masses() {
 
     // M1,2 sin^3 i = C (1 - e^2)^(3/2) (K1 + K2)^2 K2,1 P with
     // C = 1.036149e-7 M_sun, and a sin i = 13750.9871 (1 - e^2)^(1/2) (K1 + K2) P km
-    // (shared/REFERENCE-VALUES.md; textbook values in R. W. Hilditch, An
+    // (docs/REFERENCE-VALUES.md; textbook values in R. W. Hilditch, An
     // Introduction to Close Binary Stars, 2001).
     let (k1, k2, p, e) = (30.0f64, 45.0f64, 10.0f64, 0.2f64);
     let sin_i = 80f64.to_radians().sin();

@@ -93,7 +93,7 @@ fn anomaly_at(nu: f64, e: f64) -> (f64, f64) {
 
 /// Line of nodes and periastron of the orbit of `x` on the sky (mas).
 /// The ascending node lies at argument of latitude nu + omega = 0, where
-/// the position angle equals Omega (DESIGN.md Thiele-Innes formulas).
+/// the position angle equals Omega (docs/DESIGN.md Thiele-Innes formulas).
 pub fn sky_marks(model: &Model, x: &[f64]) -> Option<(LineOfNodes, (f64, f64))> {
     if model.mode() == FitMode::VelocitiesOnly {
         return None;
@@ -273,7 +273,7 @@ mod tests {
     const NODE_DEG: f64 = 23.717;
     const OMEGA_DEG: f64 = 219.907;
     /// An invented parallax; the total mass follows from Kepler's third law
-    /// with k = 1.0000377738 (REFERENCE-VALUES.md, from IAU 2015 B3).
+    /// with k = 1.0000377738 (docs/REFERENCE-VALUES.md, from IAU 2015 B3).
     const PARALLAX_MAS: f64 = 50.0;
 
     /// The book's epochs are decimal years; as Julian years their JD keep
@@ -282,7 +282,7 @@ mod tests {
         TimeScale::JulianYear.to_jd(year)
     }
 
-    /// (dRA*, dDec) in mas at decimal year `t`, by hand from the DESIGN.md
+    /// (dRA*, dDec) in mas at decimal year `t`, by hand from the docs/DESIGN.md
     /// formulas: Kepler's equation by Newton's method, Thiele-Innes
     /// constants, dDec = A X + F Y, dRA* = B X + G Y.
     fn hand_position(t: f64) -> (f64, f64) {
@@ -356,7 +356,7 @@ mod tests {
         let (rho80, theta80) = polar(hand_position(1980.0));
         // Meeus, Example 57.a, gives theta = 318.4 deg, rho = 0.411 arcsec
         // for 1980.0 (to full precision 318.42426 deg, 411.0178 mas,
-        // REFERENCE-VALUES.md): the hand computation is the book's.
+        // docs/REFERENCE-VALUES.md): the hand computation is the book's.
         assert!((theta80 - 318.42426).abs() < 2e-5, "{theta80}");
         assert!((rho80 - 411.0178).abs() < 2e-4, "{rho80}");
         let (rho60, theta60) = polar(hand_position(1960.5));

@@ -1,87 +1,18 @@
-//! Kepler's equation `M = E - e sin E` for elliptic orbits (0 <= e < 1).
-//!
-//! Two solvers, both with |E - e sin E - M| <= 4e-15 rad for every real M
-//! and 0 <= e <= 1 - 1e-12 (crate tests: dense grids and random cases,
-//! including e = 0.999999 near periastron; typically 1 ulp of M), and
-//! returning sin E and cos E that agree with `f64::sin`/`f64::cos` of the
-//! returned E to 1e-15:
-//!
-//! - [`KeplerSolver`]: built once per eccentricity (tables, ~0.2 us), then
-//!   fast: a polynomial start and one correction, no trigonometric call; use
-//!   [`KeplerSolver::solve_many`] (or [`crate::Orbit::states_into`]) for many
-//!   mean anomalies, which runs groups in vector registers.
-//!   See its docs for the method and PERFORMANCE.md for measured speed.
-//! - [`solve_kepler`]: no set-up, for one-off solves: the starting value of
-//!   F. L. Markley, "Kepler equation solver", Celestial Mechanics and
-//!   Dynamical Astronomy 63, 101 (1995), a cubic built on a Pade
-//!   approximant of sin E (error below 4e-4 rad everywhere), then Markley's
-//!   single fifth-order correction (his eqs. 20-22); sin E and cos E come
-//!   from one evaluation at the start, carried through the correction by
-//!   the addition theorem.
-//!
-//! The mean anomaly is first reduced to [-pi, pi] ([`reduce_mean_anomaly`])
-//! and then to [0, pi] by E(-M) = -E(M).
+//! [`KeplerSolver`]: the tables built once per eccentricity (uniform
+//! intervals in E, and the geometric corner table near periastron at high
+//! e) and the portable lane code that solves from them. The AVX2 kernel
+//! ([`super::simd`]) reads the same tables and shares [`KeplerSolver::refine`].
 
-// The constants below keep the digits exactly as published in fdlibm.
-#![allow(clippy::excessive_precision)]
-
+#[cfg(target_arch = "x86_64")]
+use super::has_avx2_fma;
+use super::{reduce_mean_anomaly, EccentricAnomaly, Solved, GROUP, LANES};
 use crate::error::OrbitError;
-use std::f64::consts::{FRAC_2_PI, PI};
+use std::f64::consts::PI;
 use std::sync::OnceLock;
-
-/// A solution of Kepler's equation, with the sine and cosine of E so callers
-/// need no more trigonometry.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct EccentricAnomaly {
-    /// Eccentric anomaly E in radians, in [-pi, pi] (it matches the mean
-    /// anomaly reduced to [-pi, pi], see [`reduce_mean_anomaly`]).
-    pub e_anom: f64,
-    /// sin E.
-    pub sin_e: f64,
-    /// cos E.
-    pub cos_e: f64,
-}
-
-// 2 pi split in three parts for Cody-Waite reduction: the first two have 33
-// significant bits, so k * part is exact for |k| < 2^20 (|M| < 6.5e6 rad).
-// These are 4x the pi/2 splits of fdlibm's e_rem_pio2.c (Sun Microsystems
-// 1993), pio2_1, pio2_2, pio2_2t; multiplying by 4 is exact.
-const TWO_PI_1: f64 = 4.0 * 1.570_796_326_734_125_614_17;
-const TWO_PI_2: f64 = 4.0 * 6.077_100_506_303_965_976_60e-11;
-const TWO_PI_3: f64 = 4.0 * 2.022_266_248_795_950_631_54e-21;
-// pi/2 split the same way, for the quadrant reduction in `sin_cos_0_pi`.
-const PIO2_1: f64 = 1.570_796_326_734_125_614_17;
-const PIO2_2: f64 = 6.077_100_506_303_965_976_60e-11;
-const PIO2_2T: f64 = 2.022_266_248_795_950_631_54e-21;
-/// 1.5 * 2^52: adding and subtracting it rounds to the nearest integer.
-const ROUND_MAGIC: f64 = 6_755_399_441_055_744.0;
-
-/// Reduces any real angle to [-pi, pi] by subtracting the nearest multiple of
-/// 2 pi, with a three-part 2 pi (Cody & Waite 1980, Software Manual for the
-/// Elementary Functions) so no precision is lost for |M| up to ~6e6 rad.
-#[inline(always)]
-pub fn reduce_mean_anomaly(m: f64) -> f64 {
-    let k = (m * (0.5 / PI) + ROUND_MAGIC) - ROUND_MAGIC;
-    ((m - k * TWO_PI_1) - k * TWO_PI_2) - k * TWO_PI_3
-}
-
-/// Solves Kepler's equation for any real mean anomaly (radians) and
-/// eccentricity 0 <= e < 1. The mean anomaly is reduced to [-pi, pi] first
-/// ([`reduce_mean_anomaly`]); the returned E belongs to that reduced value.
-///
-/// Behaviour for e outside [0, 1) is unspecified (no panic); use
-/// [`KeplerSolver::new`] to have it checked.
-#[inline]
-pub fn solve_kepler(mean_anomaly: f64, e: f64) -> EccentricAnomaly {
-    solve_reduced(reduce_mean_anomaly(mean_anomaly), e)
-}
 
 /// Number of intervals of equal width in E over [0, pi] in [`KeplerSolver`]
 /// (a power of two: indices are masked with INTERVALS - 1).
-const INTERVALS: usize = 16;
-/// Number of mean anomalies [`KeplerSolver::solve_many`] and
-/// [`crate::Orbit::states_into`] process together.
-pub const LANES: usize = 2 * GROUP;
+pub(super) const INTERVALS: usize = 16;
 /// Width of one interval in E.
 const STEP: f64 = PI / INTERVALS as f64;
 
@@ -122,7 +53,7 @@ fn mid_nodes() -> &'static MidNodes {
 const CORNER_E: f64 = 0.8;
 const CORNER_INTERVALS: usize = 4;
 /// Most intervals of the geometric corner table.
-const CORNER_MAX: usize = 42;
+pub(super) const CORNER_MAX: usize = 42;
 /// Ratio of consecutive ends of the geometric corner table.
 const CORNER_RATIO: f64 = 0.7;
 /// Fewest geometric ends, so that the first interval [0, (pi/4) 0.7^6] is
@@ -217,14 +148,14 @@ fn hermite_quintic(dm: f64, span: f64, d1: (f64, f64), d2: (f64, f64)) -> [f64; 
 
 /// The geometric corner table of one solver (used when e > 0.8).
 #[derive(Debug, Clone, Copy, PartialEq)]
-struct CornerTable {
+pub(super) struct CornerTable {
     /// Number of intervals in use.
-    len: usize,
+    pub(super) len: usize,
     /// M at the ends, ascending from M = 0; +inf past `len`.
-    m_ends: [f64; CORNER_MAX + 1],
+    pub(super) m_ends: [f64; CORNER_MAX + 1],
     /// Per interval: start, Hermite coefficients (offset from the interval
     /// start), middle and half width, laid out as the uniform table's rows.
-    rows: [IntervalRow; CORNER_MAX],
+    pub(super) rows: [IntervalRow; CORNER_MAX],
 }
 
 impl CornerTable {
@@ -331,12 +262,12 @@ pub struct KeplerSolver {
     e: f64,
     one_minus_e: f64,
     /// Intervals k < corner_intervals use the corner table.
-    corner_intervals: usize,
-    corner: Option<CornerTable>,
+    pub(super) corner_intervals: usize,
+    pub(super) corner: Option<CornerTable>,
     /// M at the interval ends E_k = k pi/16, k = 0..=16.
-    m_ends: [f64; INTERVALS + 1],
+    pub(super) m_ends: [f64; INTERVALS + 1],
     /// Per interval k, everything a solve reads, in one row (see [`IntervalRow`]).
-    rows: [IntervalRow; INTERVALS],
+    pub(super) rows: [IntervalRow; INTERVALS],
 }
 
 /// Positions in an [`IntervalRow`]: the start M_k, the Hermite coefficients
@@ -344,7 +275,7 @@ pub struct KeplerSolver {
 /// then the middle's E, sin E, cos E, E - sin E, 1 - cos E, and the half
 /// width h. The order is the vector kernel's: it loads a row as three
 /// groups of four.
-mod row {
+pub(super) mod row {
     pub const START: usize = 0;
     pub const COEF: usize = 1;
     pub const MID_E: usize = 6;
@@ -360,7 +291,7 @@ mod row {
 /// straddle a cache line.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[repr(C, align(32))]
-struct IntervalRow([f64; row::LEN]);
+pub(super) struct IntervalRow(pub(super) [f64; row::LEN]);
 
 impl IntervalRow {
     #[inline(always)]
@@ -436,7 +367,7 @@ impl KeplerSolver {
         self.e
     }
 
-    /// Solves Kepler's equation for any real mean anomaly (see [`solve_kepler`]).
+    /// Solves Kepler's equation for any real mean anomaly (see [`super::solve_kepler`]).
     #[inline]
     pub fn solve(&self, mean_anomaly: f64) -> EccentricAnomaly {
         self.solve_reduced(reduce_mean_anomaly(mean_anomaly))
@@ -451,15 +382,6 @@ impl KeplerSolver {
             // SAFETY: the processor has AVX2 and FMA, checked just above.
             return unsafe { self.solve_one_fma(mean_anomaly) };
         }
-        self.solve_group(&[mean_anomaly]).get(0)
-    }
-
-    /// [`Self::solve_reduced`] compiled with hardware fused multiply-add
-    /// (`f64::mul_add` is exactly rounded either way, so the result is
-    /// the same, only faster).
-    #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx2,fma")]
-    unsafe fn solve_one_fma(&self, mean_anomaly: f64) -> EccentricAnomaly {
         self.solve_group(&[mean_anomaly]).get(0)
     }
 
@@ -478,33 +400,8 @@ impl KeplerSolver {
         self.solve_many_portable(mean_anomalies, out);
     }
 
-    /// [`Self::solve_many`] with the AVX2 kernel, 4 mean anomalies per
-    /// register; a last partial group is padded, so every solve takes the
-    /// same path.
-    #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx2,fma")]
-    unsafe fn solve_many_avx2(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
-        use std::arch::x86_64::_mm256_loadu_pd;
-        let n = mean_anomalies.len().min(out.len());
-        let (ms, out) = (&mean_anomalies[..n], &mut out[..n]);
-        let mut ms_chunks = ms.chunks_exact(GROUP);
-        let mut out_chunks = out.chunks_exact_mut(GROUP);
-        for (mc, oc) in (&mut ms_chunks).zip(&mut out_chunks) {
-            let m = reduce_mean_anomaly_avx2(_mm256_loadu_pd(mc.as_ptr()));
-            oc.copy_from_slice(&self.solve_group_avx2(m).to_array());
-        }
-        let rest = ms_chunks.remainder();
-        if !rest.is_empty() {
-            let mut padded = [0.0; GROUP];
-            padded[..rest.len()].copy_from_slice(rest);
-            let m = reduce_mean_anomaly_avx2(_mm256_loadu_pd(padded.as_ptr()));
-            let tail = out_chunks.into_remainder();
-            tail.copy_from_slice(&self.solve_group_avx2(m).to_array()[..tail.len()]);
-        }
-    }
-
     #[inline(always)]
-    fn solve_many_portable(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
+    pub(super) fn solve_many_portable(&self, mean_anomalies: &[f64], out: &mut [EccentricAnomaly]) {
         let n = mean_anomalies.len().min(out.len());
         let (ms, out) = (&mean_anomalies[..n], &mut out[..n]);
         let mut ms_chunks = ms.chunks_exact(LANES);
@@ -532,27 +429,6 @@ impl KeplerSolver {
         self.solve_group(mean_anomaly)
     }
 
-    /// [`Self::solve_lanes`] by the AVX2 kernel.
-    ///
-    /// # Safety
-    /// The processor must have AVX2 and FMA ([`has_avx2_fma`]); call it from
-    /// a function compiled for them so that it inlines.
-    #[cfg(target_arch = "x86_64")]
-    #[inline(always)]
-    pub(crate) unsafe fn solve_lanes_avx2(&self, mean_anomaly: &[f64; LANES]) -> Solved<LANES> {
-        use std::arch::x86_64::_mm256_loadu_pd;
-        let lo = self.solve_group_avx2(_mm256_loadu_pd(mean_anomaly.as_ptr()));
-        let hi = self.solve_group_avx2(_mm256_loadu_pd(mean_anomaly[GROUP..].as_ptr()));
-        let join = |a: &[f64; GROUP], b: &[f64; GROUP]| -> [f64; LANES] {
-            std::array::from_fn(|i| if i < GROUP { a[i] } else { b[i - GROUP] })
-        };
-        Solved {
-            e_anom: join(&lo.e_anom, &hi.e_anom),
-            sin_e: join(&lo.sin_e, &hi.sin_e),
-            cos_e: join(&lo.cos_e, &hi.cos_e),
-        }
-    }
-
     /// [`Self::solve_lanes`] for the first [`GROUP`] lanes only (a short
     /// last block), on the portable path.
     #[inline(always)]
@@ -560,59 +436,12 @@ impl KeplerSolver {
         self.solve_group(mean_anomaly)
     }
 
-    /// [`Self::solve_group_of_four`] by the AVX2 kernel.
-    ///
-    /// # Safety
-    /// As [`Self::solve_lanes_avx2`].
-    #[cfg(target_arch = "x86_64")]
-    #[inline(always)]
-    pub(crate) unsafe fn solve_group_of_four_avx2(
-        &self,
-        mean_anomaly: &[f64; GROUP],
-    ) -> Solved<GROUP> {
-        self.solve_group_avx2(std::arch::x86_64::_mm256_loadu_pd(mean_anomaly.as_ptr()))
-    }
-
-    /// The vector kernel: the interval count and the table rows go straight
-    /// into registers (rows are loaded four values at a time and
-    /// transposed), then the lane arithmetic shared with the portable path
-    /// ([`Self::refine`]) runs on them, so both give the same bits. Lanes
-    /// near periastron at high e (e > 0.8, E < pi/4) take their rows from
-    /// the corner table, found by a second count.
-    #[cfg(target_arch = "x86_64")]
-    #[inline(always)]
-    unsafe fn solve_group_avx2(&self, mean_anomaly: std::arch::x86_64::__m256d) -> Solved<GROUP> {
-        use std::arch::x86_64::*;
-        let abs = _mm256_andnot_pd(_mm256_set1_pd(-0.0), mean_anomaly);
-        let k = count_at_or_below(abs, &self.m_ends[1..INTERVALS]);
-        match &self.corner {
-            Some(corner) if k.iter().any(|&k| (k as usize) < self.corner_intervals) => {
-                let j = count_at_or_below(abs, &corner.m_ends[1..corner.len]);
-                let near = k.map(|k| (k as usize) < self.corner_intervals);
-                let rows: [*const f64; GROUP] = std::array::from_fn(|i| {
-                    if near[i] {
-                        corner.rows[j[i] as usize % CORNER_MAX].0.as_ptr()
-                    } else {
-                        self.rows[k[i] as usize & (INTERVALS - 1)].0.as_ptr()
-                    }
-                });
-                // Mixed groups (across the corner table's edge) are fine:
-                // each lane keeps its own row and form.
-                self.refine(&lanes_from_rows(mean_anomaly, abs, &rows, near))
-            }
-            _ => {
-                let rows = k.map(|k| self.rows[k as usize & (INTERVALS - 1)].0.as_ptr());
-                self.refine(&lanes_from_rows(mean_anomaly, abs, &rows, [false; GROUP]))
-            }
-        }
-    }
-
     /// The solver proper, for L mean anomalies in [-pi, pi] at once, written
     /// lane by lane so that it compiles to vector instructions; the scalar
     /// and batch interfaces both run this code (or the AVX2 kernel, which
     /// shares [`Self::refine`]), so they agree bit for bit.
     #[inline(always)]
-    fn solve_group<const L: usize>(&self, mean_anomaly: &[f64; L]) -> Solved<L> {
+    pub(super) fn solve_group<const L: usize>(&self, mean_anomaly: &[f64; L]) -> Solved<L> {
         // E(-M) = -E(M): solve for |M| in [0, pi], restore the sign at the end.
         let mut lanes = Lanes::<L>::default();
         for (i, &m) in mean_anomaly.iter().enumerate() {
@@ -658,7 +487,7 @@ impl KeplerSolver {
     /// theorem, and one Householder correction. Shared by every path;
     /// products are fused (`mul_add`, exactly rounded on any processor).
     #[inline(always)]
-    fn refine<const L: usize>(&self, lanes: &Lanes<L>) -> Solved<L> {
+    pub(super) fn refine<const L: usize>(&self, lanes: &Lanes<L>) -> Solved<L> {
         let e = self.e;
         let one_minus_e = self.one_minus_e;
         let (mut ea, mut se, mut ce) = ([0.0; L], [0.0; L], [0.0; L]);
@@ -717,157 +546,24 @@ impl KeplerSolver {
     }
 }
 
-/// Solutions of L mean anomalies, one array per quantity (how the lanes
-/// compute them, and how a caller that goes on computing lane by lane
-/// wants them).
-pub(crate) struct Solved<const L: usize> {
-    pub e_anom: [f64; L],
-    pub sin_e: [f64; L],
-    pub cos_e: [f64; L],
-}
-
-impl<const L: usize> Solved<L> {
-    #[inline(always)]
-    fn get(&self, i: usize) -> EccentricAnomaly {
-        EccentricAnomaly {
-            e_anom: self.e_anom[i],
-            sin_e: self.sin_e[i],
-            cos_e: self.cos_e[i],
-        }
-    }
-
-    #[inline(always)]
-    fn to_array(&self) -> [EccentricAnomaly; L] {
-        std::array::from_fn(|i| self.get(i))
-    }
-}
-
-/// Values [offset, offset + 4) of four table rows as four columns (a 4x4
-/// transpose in registers: two unpacks and two lane permutes per pair).
-///
-/// # Safety
-/// AVX2 must be present, every row must hold offset + 4 values and be
-/// 32-byte aligned (as [`IntervalRow`] is); inlined into a function compiled
-/// for AVX2.
-#[cfg(target_arch = "x86_64")]
-#[inline(always)]
-unsafe fn columns(rows: &[*const f64; GROUP], offset: usize) -> [[f64; GROUP]; GROUP] {
-    use std::arch::x86_64::*;
-    let a = _mm256_load_pd(rows[0].add(offset));
-    let b = _mm256_load_pd(rows[1].add(offset));
-    let c = _mm256_load_pd(rows[2].add(offset));
-    let d = _mm256_load_pd(rows[3].add(offset));
-    let ab_even = _mm256_unpacklo_pd(a, b);
-    let ab_odd = _mm256_unpackhi_pd(a, b);
-    let cd_even = _mm256_unpacklo_pd(c, d);
-    let cd_odd = _mm256_unpackhi_pd(c, d);
-    std::mem::transmute::<[__m256d; GROUP], [[f64; GROUP]; GROUP]>([
-        _mm256_permute2f128_pd::<0x20>(ab_even, cd_even),
-        _mm256_permute2f128_pd::<0x20>(ab_odd, cd_odd),
-        _mm256_permute2f128_pd::<0x31>(ab_even, cd_even),
-        _mm256_permute2f128_pd::<0x31>(ab_odd, cd_odd),
-    ])
-}
-
-/// The kernel's lanes from four interval rows (see [`columns`]).
-#[cfg(target_arch = "x86_64")]
-#[inline(always)]
-unsafe fn lanes_from_rows(
-    m: std::arch::x86_64::__m256d,
-    abs: std::arch::x86_64::__m256d,
-    rows: &[*const f64; GROUP],
-    near_periastron: [bool; GROUP],
-) -> Lanes<GROUP> {
-    use std::arch::x86_64::*;
-    let [start, c0, c1, c2] = columns(rows, 0);
-    let [c3, c4, em, sm] = columns(rows, 4);
-    let [cm, ems, omc, half] = columns(rows, 8);
-    Lanes {
-        near_periastron,
-        m: std::mem::transmute::<__m256d, [f64; GROUP]>(abs),
-        sign: std::mem::transmute::<__m256d, [u64; GROUP]>(_mm256_and_pd(m, _mm256_set1_pd(-0.0))),
-        start,
-        coef: [c0, c1, c2, c3, c4],
-        half,
-        mid_e: em,
-        mid_sin: sm,
-        mid_cos: cm,
-        mid_e_minus_sin: ems,
-        mid_one_minus_cos: omc,
-    }
-}
-
-/// Per lane, how many of the ascending `ends` are at or below `x` (each
-/// true compare is -1; four partial sums keep the chain of additions
-/// short, as the solve is latency-bound).
-#[cfg(target_arch = "x86_64")]
-#[inline(always)]
-unsafe fn count_at_or_below(x: std::arch::x86_64::__m256d, ends: &[f64]) -> [u64; GROUP] {
-    use std::arch::x86_64::*;
-    let mut partial = [_mm256_setzero_si256(); 4];
-    for (j, &end) in ends.iter().enumerate() {
-        let ge = _mm256_cmp_pd::<_CMP_GE_OQ>(x, _mm256_set1_pd(end));
-        partial[j % 4] = _mm256_sub_epi64(partial[j % 4], _mm256_castpd_si256(ge));
-    }
-    let count = _mm256_add_epi64(
-        _mm256_add_epi64(partial[0], partial[1]),
-        _mm256_add_epi64(partial[2], partial[3]),
-    );
-    let mut k = [0u64; GROUP];
-    _mm256_storeu_si256(k.as_mut_ptr().cast(), count);
-    k
-}
-
-/// [`reduce_mean_anomaly`] on four values at once: the same IEEE
-/// operations in the same order, so the same results.
-#[cfg(target_arch = "x86_64")]
-#[inline(always)]
-unsafe fn reduce_mean_anomaly_avx2(m: std::arch::x86_64::__m256d) -> std::arch::x86_64::__m256d {
-    use std::arch::x86_64::*;
-    // For |M| <= pi the reduction is exactly the identity (M / 2pi rounds
-    // to k = +0; at M = pi the product is exactly 0.5, which rounds to
-    // even, 0), and callers mostly pass reduced values: skip its latency.
-    let abs = _mm256_andnot_pd(_mm256_set1_pd(-0.0), m);
-    if _mm256_movemask_pd(_mm256_cmp_pd::<_CMP_LE_OQ>(abs, _mm256_set1_pd(PI))) == 0b1111 {
-        return m;
-    }
-    let magic = _mm256_set1_pd(ROUND_MAGIC);
-    let k = _mm256_sub_pd(
-        _mm256_add_pd(_mm256_mul_pd(m, _mm256_set1_pd(0.5 / PI)), magic),
-        magic,
-    );
-    let r = _mm256_sub_pd(m, _mm256_mul_pd(k, _mm256_set1_pd(TWO_PI_1)));
-    let r = _mm256_sub_pd(r, _mm256_mul_pd(k, _mm256_set1_pd(TWO_PI_2)));
-    _mm256_sub_pd(r, _mm256_mul_pd(k, _mm256_set1_pd(TWO_PI_3)))
-}
-
-/// Lanes of the AVX2 kernel (one 256-bit register of f64).
-pub(crate) const GROUP: usize = 4;
 /// The sign bit of an f64.
 const SIGN_BIT: u64 = 1 << 63;
 
-/// True when the processor has AVX2 and FMA (cached by the standard library).
-#[cfg(target_arch = "x86_64")]
-#[inline]
-pub(crate) fn has_avx2_fma() -> bool {
-    std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
-}
-
 /// Per-lane inputs of [`KeplerSolver::refine`]: |M|, the sign bit of M,
 /// and the data of the lane's interval.
-struct Lanes<const L: usize> {
+pub(super) struct Lanes<const L: usize> {
     /// Lanes on the near-periastron corner table (e > 0.8, E < pi/4).
-    near_periastron: [bool; L],
-    m: [f64; L],
-    sign: [u64; L],
-    start: [f64; L],
-    coef: [[f64; L]; 5],
-    half: [f64; L],
-    mid_e: [f64; L],
-    mid_sin: [f64; L],
-    mid_cos: [f64; L],
-    mid_e_minus_sin: [f64; L],
-    mid_one_minus_cos: [f64; L],
+    pub(super) near_periastron: [bool; L],
+    pub(super) m: [f64; L],
+    pub(super) sign: [u64; L],
+    pub(super) start: [f64; L],
+    pub(super) coef: [[f64; L]; 5],
+    pub(super) half: [f64; L],
+    pub(super) mid_e: [f64; L],
+    pub(super) mid_sin: [f64; L],
+    pub(super) mid_cos: [f64; L],
+    pub(super) mid_e_minus_sin: [f64; L],
+    pub(super) mid_one_minus_cos: [f64; L],
 }
 
 impl<const L: usize> Default for Lanes<L> {
@@ -956,249 +652,4 @@ fn corner_sin_cos_deviations(x: f64) -> (f64, f64) {
             - z * (F[4]
                 - z * (F[6] - z * (F[8] - z * (F[10] - z * (F[12] - z * (F[14] - z * F[16])))))));
     (sin_m_x, cos_m_1)
-}
-
-/// Cube root of x > 0: exponent-halving bit estimate (rel. error < 4%)
-/// refined by two Halley steps y <- y (y^3 + 2x) / (2 y^3 + x), cubically
-/// convergent (relative error ~1e-15).
-#[inline]
-fn cbrt_positive(x: f64) -> f64 {
-    let mut y = f64::from_bits(x.to_bits() / 3 + 0x2a9f_7893_782d_a1ce);
-    for _ in 0..2 {
-        let y3 = y * y * y;
-        y *= (y3 + 2.0 * x) / (2.0 * y3 + x);
-    }
-    y
-}
-
-/// Core solver for m in [-pi, pi] (slightly beyond is harmless).
-#[inline]
-fn solve_reduced(m: f64, e: f64) -> EccentricAnomaly {
-    // E(-M) = -E(M): solve for |M| in [0, pi], restore the sign at the end.
-    let neg = m < 0.0;
-    let ma = m.abs();
-    let e1 = markley_start(ma, e);
-    let (s1, c1) = sin_cos_0_pi(e1);
-    // Markley (1995) eqs. 20-22: a fifth-order correction from the function
-    // and its first four derivatives at the starting value.
-    let es = e * s1;
-    let ec = e * c1;
-    let f0 = e1 - es - ma;
-    let f1 = 1.0 - ec;
-    let f2 = es;
-    let f3 = ec; // = 1 - f1
-    let d3 = -f0 / (f1 - 0.5 * f0 * f2 / f1);
-    let d4 = -f0 / (f1 + 0.5 * d3 * f2 + d3 * d3 * f3 * (1.0 / 6.0));
-    let d5 =
-        -f0 / (f1 + 0.5 * d4 * f2 + d4 * d4 * f3 * (1.0 / 6.0) - d4 * d4 * d4 * f2 * (1.0 / 24.0));
-    // sin and cos of E = e1 + d5 by the addition theorem; |d5| < 4e-4, so
-    // the neglected Taylor terms (d^5/120, d^6/720) are below 1e-19.
-    let d2 = d5 * d5;
-    let sin_d = d5 * (1.0 - d2 * (1.0 / 6.0));
-    let cos_d_m1 = -d2 * (0.5 - d2 * (1.0 / 24.0));
-    let sin_e = s1 + (s1 * cos_d_m1 + c1 * sin_d);
-    let cos_e = c1 + (c1 * cos_d_m1 - s1 * sin_d);
-    let e_anom = e1 + d5;
-    if neg {
-        EccentricAnomaly {
-            e_anom: -e_anom,
-            sin_e: -sin_e,
-            cos_e,
-        }
-    } else {
-        EccentricAnomaly {
-            e_anom,
-            sin_e,
-            cos_e,
-        }
-    }
-}
-
-/// Markley (1995) starting value (his eqs. 5-10) for 0 <= m <= pi.
-#[inline]
-fn markley_start(m: f64, e: f64) -> f64 {
-    const PI2: f64 = PI * PI;
-    let alpha = (3.0 * PI2 + 1.6 * PI * (PI - m) / (1.0 + e)) / (PI2 - 6.0);
-    let d = 3.0 * (1.0 - e) + alpha * e;
-    let q = 2.0 * alpha * d * (1.0 - e) - m * m;
-    let r = 3.0 * alpha * d * (d - 1.0 + e) * m + m * m * m;
-    let w = cbrt_positive(r.abs() + (q * q * q + r * r).sqrt());
-    let w = w * w;
-    (2.0 * r * w / (w * w + w * q + q * q) + m) / d
-}
-
-/// sin and cos of x for x in [-pi/4, 7pi/4): quadrant reduction by a two-part
-/// pi/2 and the minimax kernels of fdlibm's k_sin.c / k_cos.c (Sun
-/// Microsystems 1993) on [-pi/4, pi/4], error below 1 ulp there.
-#[inline]
-pub(crate) fn sin_cos_0_pi(x: f64) -> (f64, f64) {
-    // x >= -pi/4, so the truncation below is a floor and quadrant >= 0.
-    let quadrant = (x * FRAC_2_PI + 0.5) as i32;
-    let qf = quadrant as f64;
-    let y = (x - qf * PIO2_1) - qf * (PIO2_2 + PIO2_2T);
-    let (s, c) = sin_cos_kernel(y);
-    match quadrant & 3 {
-        0 => (s, c),
-        1 => (c, -s),
-        2 => (-s, -c),
-        _ => (-c, s),
-    }
-}
-
-/// sin and cos on [-pi/4, pi/4] (fdlibm k_sin.c and k_cos.c coefficients).
-#[inline]
-fn sin_cos_kernel(x: f64) -> (f64, f64) {
-    const S1: f64 = -1.666_666_666_666_663_243_48e-01;
-    const S2: f64 = 8.333_333_333_322_489_461_24e-03;
-    const S3: f64 = -1.984_126_982_985_794_931_34e-04;
-    const S4: f64 = 2.755_731_370_707_006_767_89e-06;
-    const S5: f64 = -2.505_076_025_340_686_341_95e-08;
-    const S6: f64 = 1.589_690_995_211_550_102_21e-10;
-    const C1: f64 = 4.166_666_666_666_660_190_37e-02;
-    const C2: f64 = -1.388_888_888_887_410_957_49e-03;
-    const C3: f64 = 2.480_158_728_947_672_941_78e-05;
-    const C4: f64 = -2.755_731_435_139_066_330_35e-07;
-    const C5: f64 = 2.087_572_321_298_174_827_90e-09;
-    const C6: f64 = -1.135_964_755_778_819_482_65e-11;
-    let z = x * x;
-    let z2 = z * z;
-    // Estrin-style grouping shortens the dependency chain.
-    let sp = (S1 + z * S2) + z2 * ((S3 + z * S4) + z2 * (S5 + z * S6));
-    let cp = (C1 + z * C2) + z2 * ((C3 + z * C4) + z2 * (C5 + z * C6));
-    let s = x + x * z * sp;
-    // cos = 1 - z/2 + z^2 cp, with fdlibm's split of 1 - z/2 for accuracy.
-    let hz = 0.5 * z;
-    let w = 1.0 - hz;
-    let c = w + (((1.0 - w) - hz) + z2 * cp);
-    (s, c)
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn kernel_matches_std_sin_cos() {
-        // Reference: the platform libm (f64::sin, f64::cos).
-        let n = 20_000;
-        let mut worst: f64 = 0.0;
-        for k in 0..=n {
-            let x = -PI / 4.0 + (2.0 * PI) * k as f64 / n as f64;
-            let (s, c) = sin_cos_0_pi(x);
-            worst = worst.max((s - x.sin()).abs()).max((c - x.cos()).abs());
-        }
-        assert!(worst < 4e-16, "worst {worst:e}");
-    }
-
-    #[test]
-    fn residual_on_dense_grid() {
-        let mut worst: f64 = 0.0;
-        for &e in &[0.0, 0.1, 0.5, 0.9, 0.99, 0.999, 0.999_999, 1.0 - 1e-12] {
-            for k in 0..=4000 {
-                let m = PI * k as f64 / 4000.0;
-                let sol = solve_kepler(m, e);
-                let r = sol.e_anom - e * sol.e_anom.sin() - m;
-                worst = worst.max(r.abs());
-            }
-        }
-        assert!(worst < 1e-15, "worst residual {worst:e}");
-    }
-
-    /// The AVX2 kernel (taken by `solve_many` on this machine when the
-    /// processor has AVX2 and FMA) and the portable lane code give the same
-    /// bits, for every length (partial groups), corner and non-corner
-    /// eccentricities, negative zero, M = +-pi and unreduced M.
-    #[test]
-    fn vector_kernel_equals_portable_path() {
-        let mut ms: Vec<f64> = (0..203)
-            .map(|k| -7.0 + 14.0 * ((k as f64 + 0.5) * 0.618_033_988_749_894_9).fract())
-            .collect();
-        ms.extend([0.0, -0.0, PI, -PI, 1e-9, -1e-300, 0.05, 3.0, 1e4]);
-        ms.extend((0..40).map(|k| (k as f64 - 20.0) * 0.003));
-        let blank = EccentricAnomaly {
-            e_anom: 0.0,
-            sin_e: 0.0,
-            cos_e: 1.0,
-        };
-        let bits = |v: &[EccentricAnomaly]| -> Vec<[u64; 3]> {
-            v.iter()
-                .map(|a| [a.e_anom.to_bits(), a.sin_e.to_bits(), a.cos_e.to_bits()])
-                .collect()
-        };
-        for &e in &[0.0, 0.3, 0.8, 0.81, 0.95, 0.999, 0.999_999] {
-            let solver = KeplerSolver::new(e).unwrap();
-            for len in [0, 1, 3, 4, 5, 7, 8, 9, ms.len()] {
-                let mut fast = vec![blank; len];
-                let mut portable = vec![blank; len];
-                solver.solve_many(&ms[..len], &mut fast);
-                solver.solve_many_portable(&ms[..len], &mut portable);
-                assert_eq!(bits(&fast), bits(&portable), "e = {e}, {len} values");
-                let one_by_one: Vec<_> = ms[..len].iter().map(|&m| solver.solve(m)).collect();
-                assert_eq!(bits(&fast), bits(&one_by_one), "e = {e}, {len} values");
-            }
-        }
-    }
-}
-
-#[cfg(test)]
-mod grid_tests {
-    use super::*;
-
-    /// Worst residual |E - e sin E - M| (libm sin) of both solvers on a grid
-    /// dense near periastron, for e up to 1 - 1e-12.
-    #[test]
-    fn residuals_at_machine_precision() {
-        let es = [
-            0.0,
-            0.1,
-            0.3,
-            0.5,
-            0.7,
-            0.79,
-            0.8,
-            0.81,
-            0.9,
-            0.93,
-            0.95,
-            0.951,
-            0.955,
-            0.96,
-            0.961,
-            0.97,
-            0.98,
-            0.985,
-            0.986,
-            0.99,
-            0.999,
-            0.9999,
-            0.999_999,
-            1.0 - 1e-9,
-            1.0 - 1e-12,
-        ];
-        for e in es {
-            let solver = KeplerSolver::new(e).unwrap();
-            let n = 20_000;
-            for k in 0..=n {
-                let u = k as f64 / n as f64;
-                let m = PI * u * u * u;
-                for sol in [solver.solve_reduced(m), solve_kepler(m, e)] {
-                    let r = (sol.e_anom - e * sol.e_anom.sin() - m).abs();
-                    assert!(r <= 4e-15, "e={e} M={m} residual {r:e}");
-                    assert!((sol.sin_e - sol.e_anom.sin()).abs() <= 1e-15, "e={e} M={m}");
-                    assert!((sol.cos_e - sol.e_anom.cos()).abs() <= 1e-15, "e={e} M={m}");
-                }
-            }
-        }
-    }
-
-    #[test]
-    fn fast_cube_root() {
-        // Reference: f64::cbrt (platform libm).
-        for k in -300..300 {
-            let x = 1.7f64.powi(k) * 1.234;
-            let y = cbrt_positive(x);
-            let rel = (y / x.cbrt() - 1.0).abs();
-            assert!(rel < 1e-14, "x={x} rel {rel:e}");
-        }
-    }
 }

@@ -436,7 +436,7 @@ mod tests {
     /// log-uniform prior (whose floor the best fit sits against), small
     /// enough to run 20 seeds in a few seconds.
     fn sparse_with_jitter(seed: u64, temperatures: usize) -> RunConfig {
-        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/sparse.toml");
+        let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("../../configs/sparse.toml");
         let text = fs::read_to_string(&path)
             .unwrap()
             .replace(

@@ -1115,7 +1115,8 @@ mod tests {
         // noise-free data is zero up to the rounding of the CSV columns
         // (4 decimals). A sign or unit error between them shows up here.
         let dir = tempfile::tempdir().expect("temp dir");
-        let file = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/calibration/small.toml");
+        let file =
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("../../configs/calibration/small.toml");
         let text = std::fs::read_to_string(&file).expect("small.toml");
         let mut settings = Settings::parse(&text, &file).expect("valid settings");
         settings.output = dir.path().to_owned();
