@@ -10,8 +10,9 @@
 //! summarised on the circle (Mardia & Jupp 2000, sect. 2.2).
 //!
 //! Each call writes a new numbered folder `RUN/prediction-N/` (never
-//! touching an earlier one) with `predictions.txt`, `.csv` and `.json` and
-//! a sky plot; the folder is assembled under a temporary name and renamed
+//! touching an earlier one) with `predictions.txt`, `.csv` and `.json`, a
+//! sky plot and, over two or more epochs, the ephemeris plot (separation,
+//! position angle and velocities against time, per mode); the folder is assembled under a temporary name and renamed
 //! into place only when complete.
 
 use std::fs;
