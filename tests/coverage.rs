@@ -34,8 +34,8 @@
 //! "Sampling Techniques", 3rd ed., sect. 9.2). Seeded and deterministic: the
 //! same seeds give the same hits on any machine and thread count.
 //!
-//! Cost: 48 fits of 12 positions (two at a time), about 1.5 min in
-//! --release on 2 idle cores.
+//! Cost: 48 fits of 12 positions (two at a time): 410 s in --release on 2
+//! cores under a load average of about 15, under 3 min of CPU.
 
 use std::fs;
 use std::path::Path;
@@ -247,7 +247,9 @@ const QUANTILE_COLUMNS: [(&str, f64); 7] = [
 /// between quantiles is an approximation of the mixture's CDF.
 fn cdf_at(quantiles: &[f64; 7], value: f64) -> f64 {
     let (first, last) = (quantiles[0], quantiles[6]);
-    let tail = (quantiles[1] - quantiles[0]).max(quantiles[6] - quantiles[5]).max(1e-12);
+    let tail = (quantiles[1] - quantiles[0])
+        .max(quantiles[6] - quantiles[5])
+        .max(1e-12);
     if value < first {
         return 0.025 * (1.0 - (first - value) / tail).max(0.0);
     }
@@ -280,8 +282,7 @@ fn held_out_positions_fall_in_the_predictive_bands_at_the_nominal_rates() {
                 if system >= SYSTEMS {
                     break;
                 }
-                let (hits, modes) =
-                    one_system(&dir.path().join(format!("{system:02}")), system);
+                let (hits, modes) = one_system(&dir.path().join(format!("{system:02}")), system);
                 results.lock().unwrap().push((system, hits, modes));
             });
         }
@@ -293,11 +294,7 @@ fn held_out_positions_fall_in_the_predictive_bands_at_the_nominal_rates() {
     let s = SYSTEMS as f64;
     let n = (SYSTEMS * HELD_OUT.len()) as f64;
     let mut failures = Vec::new();
-    let multimodal: Vec<usize> = results
-        .iter()
-        .filter(|r| r.2 > 1)
-        .map(|r| r.0)
-        .collect();
+    let multimodal: Vec<usize> = results.iter().filter(|r| r.2 > 1).map(|r| r.0).collect();
     eprintln!(
         "held-out coverage, {SYSTEMS} systems x {} epochs ({} points per band); \
          systems with several period modes: {multimodal:?}",
@@ -308,7 +305,9 @@ fn held_out_positions_fall_in_the_predictive_bands_at_the_nominal_rates() {
         for (l, &(p, _, _)) in LEVELS.iter().enumerate() {
             let per_system: Vec<f64> = results
                 .iter()
-                .map(|(_, h)| h[q][l].iter().filter(|&&x| x).count() as f64 / HELD_OUT.len() as f64)
+                .map(|(_, h, _)| {
+                    h[q][l].iter().filter(|&&x| x).count() as f64 / HELD_OUT.len() as f64
+                })
                 .collect();
             let pooled = per_system.iter().sum::<f64>() / s;
             let per_epoch: Vec<f64> = (0..HELD_OUT.len())

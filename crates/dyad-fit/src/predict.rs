@@ -12,8 +12,9 @@
 //! Each call writes a new numbered folder `RUN/prediction-N/` (never
 //! touching an earlier one) with `predictions.txt`, `.csv` and `.json`, a
 //! sky plot and, over two or more epochs, the ephemeris plot (separation,
-//! position angle and velocities against time, per mode); the folder is assembled under a temporary name and renamed
-//! into place only when complete.
+//! position angle and velocities against time, per mode); the folder is
+//! assembled under a temporary name and renamed into place only when
+//! complete.
 
 use std::fs;
 use std::path::{Path, PathBuf};
