@@ -10,23 +10,23 @@
 //! summarised on the circle (Mardia & Jupp 2000, sect. 2.2).
 //!
 //! Each call writes a new numbered folder `RUN/prediction-N/` (never
-//! touching an earlier one) with `predictions.txt`, `.csv` and `.json` and
-//! a sky plot; the folder is assembled under a temporary name and renamed
-//! into place only when complete.
+//! touching an earlier one) with `predictions.txt`, `.csv` and `.json`, a
+//! sky plot and, over two or more epochs, the ephemeris plot (separation,
+//! position angle and velocities against time, per mode); the folder is
+//! assembled under a temporary name and renamed into place only when
+//! complete.
 
 use std::fs;
 use std::path::{Path, PathBuf};
 
 use crate::error::{bail, Context, Result};
-use rayon::prelude::*;
 use serde_json::json;
 
-use dyad_common::quantile::quantile_sorted;
 use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
 use dyad_orbit::time::TimeScale;
-use dyad_report::stats::{circular_mean, wrap_around};
-use dyad_report::SkyPrediction;
+use dyad_plan::{predictive_bands, EpochBands, Quantities};
+use dyad_report::{Band, EphemerisPanel, EphemerisPlotInput, SkyPrediction};
 
 use crate::fit::Outcome;
 use crate::modes::split_modes;
@@ -41,10 +41,6 @@ const MAX_EPOCHS: usize = 20_000;
 
 /// Most epochs marked on the sky plot (evenly chosen beyond).
 const SKY_MARKS: usize = 12;
-
-/// The quantiles written for each quantity: the median and the ends of the
-/// 68, 90 and 95 per cent equal-tailed intervals.
-const PROBABILITIES: [f64; 7] = [0.5, 0.16, 0.84, 0.05, 0.95, 0.025, 0.975];
 
 /// What the user asked for.
 pub struct PredictOptions {
@@ -152,49 +148,15 @@ fn quantities(model: &Model) -> Vec<Quantity> {
     q
 }
 
-/// Quantiles [`PROBABILITIES`] of `values` (sorted in place); position
-/// angles are unwrapped around their circular mean first and shifted so the
-/// median lies in [0, 360) (interval ends may then fall outside it).
-fn quantiles(values: &mut [f64], angle: bool) -> [f64; 7] {
-    if angle {
-        let centre = circular_mean(values, 360.0);
-        let centre = if centre.is_finite() { centre } else { 180.0 };
-        for v in values.iter_mut() {
-            *v = wrap_around(*v, centre, 360.0);
-        }
-    }
-    values.sort_by(f64::total_cmp);
-    let mut q = PROBABILITIES.map(|p| quantile_sorted(values, p));
-    if angle && q[0].is_finite() {
-        let shift = q[0].rem_euclid(360.0) - q[0];
-        for v in q.iter_mut() {
-            *v += shift;
-        }
-    }
-    q
-}
-
-/// Mean (dRA*, dDec) and their covariance, mas and mas².
-pub type OffsetSpread = ((f64, f64), [[f64; 2]; 2]);
-
-/// Posterior-predictive quantiles of one mode at one epoch.
-#[derive(Debug, Clone)]
-pub struct ModePrediction {
-    /// Quantiles per quantity (in the order of [`Prediction::quantities`]):
-    /// median, then the ends of the 68, 90 and 95 per cent intervals.
-    pub quantiles: Vec<[f64; 7]>,
-    /// Mean (dRA*, dDec) and their covariance, mas and mas² (for the sky
-    /// plot's ellipse).
-    pub offsets: Option<OffsetSpread>,
-}
-
-/// Predictions of one mode at every epoch.
+/// Posterior-predictive bands of one mode at every epoch, from up to
+/// [`DRAWS_PER_MODE`] of its draws; the offsets' joint spread feeds the sky
+/// plot's ellipses.
 fn predict_mode(
     model: &Model,
     draws: &Draws,
     quantities: &[Quantity],
     times_jd: &[f64],
-) -> Result<Vec<ModePrediction>> {
+) -> Result<Vec<EpochBands>> {
     let dim = model.dim();
     let n = draws.table.n_draws();
     let stride = n.div_ceil(DRAWS_PER_MODE).max(1);
@@ -202,61 +164,42 @@ fn predict_mode(
         .step_by(stride)
         .map(|d| &draws.sampled[d * dim..(d + 1) * dim])
         .collect();
-    times_jd
-        .par_iter()
-        .map(|&t| {
-            let mut columns: Vec<Vec<f64>> =
-                vec![Vec::with_capacity(points.len()); quantities.len()];
-            let mut offsets = Vec::with_capacity(points.len());
-            for x in &points {
-                let position = model.predict_position(x, t);
-                if let Some(s) = position {
-                    offsets.push((s.dra, s.ddec));
+    let periods: Vec<Option<f64>> = quantities
+        .iter()
+        .map(|q| (*q == Quantity::PositionAngle).then_some(360.0))
+        .collect();
+    let index = |want| quantities.iter().position(|q| *q == want);
+    let pair = index(Quantity::Dra)
+        .zip(index(Quantity::Ddec))
+        .map(|(a, b)| [a, b]);
+    let predict = |d: usize, t: f64, out: &mut [f64]| {
+        let x = points[d];
+        let position = model.predict_position(x, t);
+        for (q, slot) in quantities.iter().zip(out.iter_mut()) {
+            let value = match q {
+                Quantity::Separation => position.map(|s| s.dra.hypot(s.ddec)),
+                Quantity::PositionAngle => {
+                    position.map(|s| s.dra.atan2(s.ddec).to_degrees().rem_euclid(360.0))
                 }
-                for (q, column) in quantities.iter().zip(columns.iter_mut()) {
-                    let value = match q {
-                        Quantity::Separation => position.map(|s| s.dra.hypot(s.ddec)),
-                        Quantity::PositionAngle => {
-                            position.map(|s| s.dra.atan2(s.ddec).to_degrees().rem_euclid(360.0))
-                        }
-                        Quantity::Dra => position.map(|s| s.dra),
-                        Quantity::Ddec => position.map(|s| s.ddec),
-                        // On the zero point of the first instrument.
-                        Quantity::VelocityPrimary => model.velocity_model(x, t, Star::Primary, 0),
-                        Quantity::VelocitySecondary => {
-                            model.velocity_model(x, t, Star::Secondary, 0)
-                        }
-                    };
-                    if let Some(v) = value.filter(|v| v.is_finite()) {
-                        column.push(v);
-                    }
-                }
-            }
-            if columns.iter().any(Vec::is_empty) {
-                bail!("no posterior draw of the mode gives a prediction at JD {t}");
-            }
-            let quantiles = quantities
-                .iter()
-                .zip(columns.iter_mut())
-                .map(|(q, c)| quantiles(c, *q == Quantity::PositionAngle))
-                .collect();
-            let offsets = (!offsets.is_empty()).then(|| {
-                let m = offsets.len() as f64;
-                let (mx, my) = offsets
-                    .iter()
-                    .fold((0.0, 0.0), |(a, b), (x, y)| (a + x / m, b + y / m));
-                let mut cov = [[0.0; 2]; 2];
-                for (x, y) in &offsets {
-                    cov[0][0] += (x - mx) * (x - mx) / m;
-                    cov[0][1] += (x - mx) * (y - my) / m;
-                    cov[1][1] += (y - my) * (y - my) / m;
-                }
-                cov[1][0] = cov[0][1];
-                ((mx, my), cov)
-            });
-            Ok(ModePrediction { quantiles, offsets })
-        })
-        .collect()
+                Quantity::Dra => position.map(|s| s.dra),
+                Quantity::Ddec => position.map(|s| s.ddec),
+                // On the zero point of the first instrument.
+                Quantity::VelocityPrimary => model.velocity_model(x, t, Star::Primary, 0),
+                Quantity::VelocitySecondary => model.velocity_model(x, t, Star::Secondary, 0),
+            };
+            *slot = value.unwrap_or(f64::NAN);
+        }
+    };
+    let quantities = Quantities {
+        periods: &periods,
+        pair,
+    };
+    Ok(predictive_bands(
+        points.len(),
+        times_jd,
+        quantities,
+        predict,
+    )?)
 }
 
 /// The first `RUN/prediction-N` that does not exist yet, and its N.
@@ -331,12 +274,13 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
             let mut entry = serde_json::Map::new();
             entry.insert("epoch".into(), json!(epoch));
             entry.insert("jd".into(), json!(t));
-            for (q, v) in quantities.iter().zip(&p.quantiles) {
+            for (q, band) in quantities.iter().zip(&p.bands) {
+                let v = band.as_array();
                 text.push_str(&format!(
                     "  {:>30}",
                     format!("{:.2} [{:.2}, {:.2}]", v[0], v[1], v[2])
                 ));
-                for x in v {
+                for x in &v {
                     csv.push_str(&format!(",{x:?}"));
                 }
                 entry.insert(
@@ -398,6 +342,10 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
             );
             dyad_report::plot_sky(&partial.join("sky"), &input)?;
         }
+        if times.len() >= 2 {
+            let input = ephemeris_input(&split, &quantities, &times, &per_mode);
+            dyad_report::plot_ephemeris(&partial.join("ephemeris"), &input)?;
+        }
         Ok(())
     })();
     if let Err(e) = written {
@@ -434,12 +382,73 @@ pub struct Prediction {
     pub text: String,
     /// The epochs, JD.
     pub epochs_jd: Vec<f64>,
-    /// The predicted quantities, in the order of the quantiles below.
+    /// The predicted quantities, in the order of the bands below.
     pub quantities: Vec<Quantity>,
     /// The period modes predictions were made for.
     pub modes: Vec<crate::modes::PeriodMode>,
-    /// Per mode, per epoch: the predictive quantiles.
-    pub per_mode: Vec<Vec<ModePrediction>>,
+    /// Per mode, per epoch: the predictive bands (median, 68, 90 and 95 %).
+    pub per_mode: Vec<Vec<EpochBands>>,
+}
+
+/// The ephemeris plot: separation, position angle and the velocities
+/// against time, per mode.
+fn ephemeris_input(
+    split: &crate::modes::ModeSplit,
+    quantities: &[Quantity],
+    times_jd: &[f64],
+    per_mode: &[Vec<EpochBands>],
+) -> EphemerisPlotInput {
+    let panels = quantities
+        .iter()
+        .enumerate()
+        .filter_map(|(k, q)| {
+            let axis_label = match q {
+                Quantity::Separation => "Separation ρ [mas]",
+                Quantity::PositionAngle => "Position angle θ [deg]",
+                Quantity::VelocityPrimary => "Primary velocity [km/s]",
+                Quantity::VelocitySecondary => "Secondary velocity [km/s]",
+                Quantity::Dra | Quantity::Ddec => return None,
+            };
+            let modes = per_mode
+                .iter()
+                .map(|epochs| Band {
+                    median: epochs.iter().map(|e| e.bands[k].median).collect(),
+                    q68: epochs.iter().map(|e| e.bands[k].q68).collect(),
+                    q95: epochs.iter().map(|e| e.bands[k].q95).collect(),
+                })
+                .collect();
+            Some(EphemerisPanel {
+                axis_label: axis_label.to_owned(),
+                angle: *q == Quantity::PositionAngle,
+                modes,
+            })
+        })
+        .collect();
+    let mode_labels = split
+        .modes
+        .iter()
+        .map(|m| {
+            let period = format!("P = {:.3} yr", m.period_days / 365.25);
+            if split.is_multimodal() {
+                format!(
+                    "mode {}: {period}, weight {:.3} ± {:.3}",
+                    m.number, m.weight, m.weight_error
+                )
+            } else {
+                format!("{period} (one period mode)")
+            }
+        })
+        .collect();
+    EphemerisPlotInput {
+        title: "Predicted ephemeris: medians with 68 and 95 % bands per period mode".to_owned(),
+        time_label: "Epoch [Julian year]".to_owned(),
+        times: times_jd
+            .iter()
+            .map(|&t| TimeScale::JulianYear.from_jd(t))
+            .collect(),
+        mode_labels,
+        panels,
+    }
 }
 
 /// The sky plot: posterior orbits and, per mode, the predicted mean
@@ -449,7 +458,7 @@ fn sky_input(
     draws: &Draws,
     split: &crate::modes::ModeSplit,
     epochs: &[f64],
-    per_mode: &[Vec<ModePrediction>],
+    per_mode: &[Vec<EpochBands>],
     n_tracks: usize,
 ) -> dyad_report::SkyPlotInput {
     let dim = model.dim();
@@ -462,7 +471,8 @@ fn sky_input(
             if k % mark_step != 0 {
                 continue;
             }
-            if let Some(((dra, ddec), cov)) = p.offsets {
+            if let Some(spread) = p.pair {
+                let ([dra, ddec], cov) = (spread.mean, spread.cov);
                 let label = if split.is_multimodal() {
                     format!("{epoch} (mode {})", m.number)
                 } else {

@@ -6,6 +6,9 @@
 //! intervals of chosen quantities (the masses, the period), so that dates
 //! can be ranked before they are observed.
 //!
+//! It also summarises draws' predictions over epochs into the 68, 90 and 95
+//! per cent posterior-predictive bands of an ephemeris ([`ephemeris`]).
+//!
 //! What it is not for: fitting, reading run folders, or orbit kinematics.
 //! The caller evaluates the model (see [`Observable`]); this crate only
 //! reweights draws.
@@ -39,6 +42,7 @@
 #![deny(missing_docs)]
 
 mod calendar;
+pub mod ephemeris;
 
 use rand::{Rng, SeedableRng};
 use rand_distr::StandardNormal;
@@ -46,6 +50,7 @@ use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 
 pub use calendar::{calendar_month, MonthRange};
+pub use ephemeris::{predictive_bands, EpochBands, PairSpread, PredictiveBand, Quantities};
 
 /// Errors of the planning computation.
 #[derive(Debug, thiserror::Error, PartialEq)]
@@ -69,6 +74,12 @@ pub enum PlanError {
     /// No candidate dates.
     #[error("no candidate dates to rank")]
     NoDates,
+    /// No posterior draw predicts some quantity at an epoch.
+    #[error("no posterior draw gives a prediction at JD {t_jd}")]
+    NoPrediction {
+        /// The epoch, JD.
+        t_jd: f64,
+    },
 }
 
 /// Fewest draws the reweighting works with.

@@ -54,6 +54,7 @@ pub use plots::{
     PolarPoint, RankHistogramInput, SeparationPlotInput, SkyMeasurement, SkyPlotInput,
     SkyPrediction, Star, VelocityPlotInput, VelocityPoint, WindowSummary, RANK_BAND_PROBABILITY,
 };
+pub use plots::{plot_ephemeris, EphemerisPanel, EphemerisPlotInput};
 pub use plots::{plot_next_epoch_advice, AdviceCurve, AdvicePlotInput};
 pub use stats::{summarise, ParameterSummary, PosteriorSummary};
 pub use summary::{

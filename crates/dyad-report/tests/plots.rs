@@ -589,3 +589,89 @@ fn separation_and_angle_plot_draws_bands_and_rejects_mismatched_lengths() {
     };
     assert!(plot_separation_and_angle(&dir.join("bad_separation"), &short).is_err());
 }
+
+#[test]
+fn ephemeris_plot_draws_each_mode_and_rejects_mismatched_lengths() {
+    // Two invented modes; the position angle of the first passes 360 in the
+    // window and its band straddles north there.
+    let dir = preview_dir();
+    let n = 120;
+    let times: Vec<f64> = (0..n)
+        .map(|k| 2027.0 + 6.0 * k as f64 / (n - 1) as f64)
+        .collect();
+    let band = |v: Vec<f64>, w: f64, angle: bool| Band {
+        median: v
+            .iter()
+            .map(|x| if angle { x.rem_euclid(360.0) } else { *x })
+            .collect(),
+        q68: v
+            .iter()
+            .map(|x| {
+                let m = if angle { x.rem_euclid(360.0) } else { *x };
+                [m - w, m + w]
+            })
+            .collect(),
+        q95: v
+            .iter()
+            .map(|x| {
+                let m = if angle { x.rem_euclid(360.0) } else { *x };
+                [m - 2.0 * w * (1.0 + 0.3 * (x * 0.01).sin()), m + 2.0 * w]
+            })
+            .collect(),
+    };
+    let along = |f: &dyn Fn(f64) -> f64| times.iter().map(|&t| f(t - 2027.0)).collect();
+    let panel = |label: &str, angle: bool, modes: Vec<Band>| EphemerisPanel {
+        axis_label: label.into(),
+        angle,
+        modes,
+    };
+    let input = EphemerisPlotInput {
+        title: "Ephemeris of Tarn-7".into(),
+        time_label: "Epoch [Julian year]".into(),
+        times: times.clone(),
+        mode_labels: vec![
+            "mode 1: P = 4.10 yr, weight 0.71".into(),
+            "mode 2: P = 8.20 yr, weight 0.29".into(),
+        ],
+        panels: vec![
+            panel(
+                "Separation ρ [mas]",
+                false,
+                vec![
+                    band(along(&|t| 120.0 + 40.0 * (1.5 * t).sin()), 4.0, false),
+                    band(along(&|t| 150.0 + 20.0 * (0.8 * t).cos()), 9.0, false),
+                ],
+            ),
+            panel(
+                "Position angle θ [deg]",
+                true,
+                vec![
+                    band(along(&|t| 300.0 + 25.0 * t), 5.0, true),
+                    band(along(&|t| 200.0 + 10.0 * t), 12.0, true),
+                ],
+            ),
+            panel(
+                "Primary velocity [km/s]",
+                false,
+                vec![
+                    band(along(&|t| -4.0 + 6.0 * (1.5 * t).cos()), 0.6, false),
+                    band(along(&|t| -4.0 + 3.0 * (0.8 * t).sin()), 1.2, false),
+                ],
+            ),
+        ],
+    };
+    let files = plot_ephemeris(&dir.join("ephemeris"), &input).unwrap();
+    check_files(&files, 1200, 160 + 3 * 340);
+    // Both modes' colours (Okabe & Ito blue and vermillion) are drawn.
+    let img = image::open(&files.png).unwrap().to_rgb8();
+    let has = |c: [u8; 3]| img.pixels().any(|p| p.0 == c);
+    assert!(has([0, 114, 178]) && has([213, 94, 0]));
+    let mut short = input.clone();
+    short.panels[1].modes[0].q95.pop();
+    assert!(plot_ephemeris(&dir.join("bad_ephemeris"), &short).is_err());
+    let one = EphemerisPlotInput {
+        times: vec![2027.0],
+        ..input
+    };
+    assert!(plot_ephemeris(&dir.join("bad_ephemeris"), &one).is_err());
+}

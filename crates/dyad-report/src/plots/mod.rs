@@ -8,6 +8,7 @@
 mod advice;
 mod category;
 pub mod density;
+mod ephemeris;
 mod masses;
 mod pairs;
 mod periods;
@@ -17,6 +18,7 @@ mod sky;
 mod velocity;
 
 pub use advice::{plot_next_epoch_advice, AdviceCurve, AdvicePlotInput};
+pub use ephemeris::{plot_ephemeris, EphemerisPanel, EphemerisPlotInput};
 pub use masses::{plot_mass_distributions, DistributionPanel};
 pub use periods::{plot_period_windows, MassInterval, WindowSummary};
 pub use ranks::{
