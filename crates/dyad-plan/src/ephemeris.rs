@@ -241,7 +241,7 @@ mod tests {
         // Quantity 0: t + draw; quantity 1: undefined for odd draws.
         let predict = |d: usize, t: f64, out: &mut [f64]| {
             out[0] = t + d as f64;
-            if d % 2 == 0 {
+            if d.is_multiple_of(2) {
                 out[1] = d as f64;
             }
         };
