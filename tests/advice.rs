@@ -12,6 +12,9 @@ use rand_distr::StandardNormal;
 use rand_xoshiro::Xoshiro256PlusPlus;
 use serde_json::Value;
 
+mod support;
+use support::run_ok;
+
 use dyad_model::simulate::Scenario;
 use dyad_orbit::time::TimeScale;
 use dyad_orbit::Orbit;
@@ -25,21 +28,6 @@ fn run_err(args: &[&std::ffi::OsStr]) -> String {
     let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
     assert!(!stderr.contains("panicked"), "{stderr}");
     stderr
-}
-
-fn run_ok(args: &[&std::ffi::OsStr]) -> String {
-    let out = Command::new(env!("CARGO_BIN_EXE_dyad"))
-        .args(args)
-        .output()
-        .expect("the dyad binary runs");
-    assert!(
-        out.status.success(),
-        "dyad {:?} failed:\n{}\n{}",
-        args,
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8_lossy(&out.stdout).into_owned()
 }
 
 /// An invented 12-year pair observed on a third of its orbit, before

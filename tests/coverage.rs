@@ -39,13 +39,15 @@
 
 use std::fs;
 use std::path::Path;
-use std::process::Command;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Mutex;
 
 use rand::{Rng, SeedableRng};
 use rand_distr::StandardNormal;
 use rand_xoshiro::Xoshiro256PlusPlus;
+
+mod support;
+use support::run_ok as dyad;
 
 use dyad_model::simulate::Scenario;
 use dyad_orbit::time::TimeScale;
@@ -137,21 +139,6 @@ ddec_error_mas = 2.0
 corr = 0.0
 "#
     )
-}
-
-fn dyad(args: &[&std::ffi::OsStr]) -> String {
-    let out = Command::new(env!("CARGO_BIN_EXE_dyad"))
-        .args(args)
-        .output()
-        .expect("the dyad binary runs");
-    assert!(
-        out.status.success(),
-        "dyad {:?} failed:\n{}\n{}",
-        args,
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8_lossy(&out.stdout).into_owned()
 }
 
 /// `hits[quantity][level][epoch]` of one system.
