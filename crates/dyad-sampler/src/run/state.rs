@@ -155,15 +155,12 @@ pub(super) fn blank_state(config: &RunConfig, dim: usize) -> State {
     }
 }
 
-// Burn-in of `fraction` of `steps`, rounded to the nearest step.
-pub(super) use dyad_common::burn_in_steps as fraction_of;
-
 /// Burn-in of a run with a fixed share `fraction` after `steps` steps whose
 /// cold-chain history began at `history_start` (the end of a tempered
 /// ladder's adaptation; 0 untempered): the share, or the adaptation if it
 /// ends later.
 fn tempered_burn_in(fraction: f64, steps: u64, history_start: u64) -> u64 {
-    fraction_of(fraction, steps).max(history_start)
+    dyad_common::burn_in_steps(fraction, steps).max(history_start)
 }
 
 pub(super) fn check_convergence(
