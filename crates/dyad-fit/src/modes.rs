@@ -6,7 +6,9 @@
 //! Modes are numbered from 1 in order of increasing period.
 
 use dyad_common::quantile::median_of_finite as median;
+use dyad_model::likelihood::Model;
 use dyad_report::PosteriorDraws;
+use dyad_sampler::{KeptDraws, Watch, WatchedSeries};
 
 use crate::posterior::Draws;
 
@@ -106,6 +108,75 @@ fn nearest_group(groups: &[[f64; 2]], l: f64) -> usize {
         .enumerate()
         .min_by(|a, b| distance(a.1).total_cmp(&distance(b.1)))
         .map_or(0, |(i, _)| i)
+}
+
+/// What the stopping rule watches of the period modes: at each check the
+/// kept draws' ln P are grouped as [`split_modes`] groups them, and every
+/// mode gives one series, 1 for a draw in it and 0 otherwise (so its mean
+/// is the mode's weight). The sampler then waits until each indicator has
+/// the effective draws and the split R-hat it asks of a parameter, i.e.
+/// until the walkers agree on the weights and the weights' Monte Carlo
+/// error is about `sqrt(w (1 - w) / N_eff)` or less. With one mode there is
+/// nothing to watch.
+pub struct ModeWatch {
+    /// Index of the period coordinate and whether it is ln P (else P).
+    period: Option<(usize, bool)>,
+    ln_p: Vec<f64>,
+    labels: Vec<usize>,
+}
+
+impl ModeWatch {
+    /// The watch for the posterior of `model`.
+    pub fn new(model: &Model) -> Self {
+        let period = model
+            .layout()
+            .period_index()
+            .map(|i| (i, model.layout().names()[i].starts_with("ln_")));
+        Self {
+            period,
+            ln_p: Vec::new(),
+            labels: Vec::new(),
+        }
+    }
+}
+
+impl Watch for ModeWatch {
+    fn watch(&mut self, draws: &KeptDraws<'_>) -> Vec<WatchedSeries> {
+        let Some((index, is_log)) = self.period else {
+            return Vec::new();
+        };
+        self.ln_p.clear();
+        self.ln_p.extend(
+            draws
+                .parameter(index)
+                .iter()
+                .map(|&x| if is_log { x } else { x.ln() }),
+        );
+        let groups = ln_period_groups(&self.ln_p);
+        if groups.len() < 2 {
+            return Vec::new();
+        }
+        self.labels.clear();
+        self.labels
+            .extend(self.ln_p.iter().map(|&l| nearest_group(&groups, l)));
+        groups
+            .iter()
+            .enumerate()
+            .map(|(k, g)| WatchedSeries {
+                name: format!(
+                    "share of draws in period mode {} ({:.4} to {:.4} d)",
+                    k + 1,
+                    g[0].exp(),
+                    g[1].exp()
+                ),
+                values: self
+                    .labels
+                    .iter()
+                    .map(|&m| if m == k { 1.0 } else { 0.0 })
+                    .collect(),
+            })
+            .collect()
+    }
 }
 
 /// Splits the draws into period modes and labels every draw. `walkers` is

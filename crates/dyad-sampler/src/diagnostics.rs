@@ -592,6 +592,28 @@ impl DiagnosticsWorkspace {
         Ok(self.ess_tail_loaded(n_steps, n_walkers))
     }
 
+    /// Effective sample size of the mean of one parameter (step-major
+    /// draws): the ESS of the split chains of the draws themselves, not of
+    /// their ranks, as the Monte Carlo standard error of a mean,
+    /// `sd / sqrt(ESS)`, needs (Vehtari et al. 2021, sect. 3.2). For a 0/1
+    /// indicator it equals the bulk ESS (ranks of two values are an affine
+    /// map of them).
+    pub fn ess_mean(
+        &mut self,
+        draws: &[f64],
+        n_steps: usize,
+        n_walkers: usize,
+    ) -> Result<f64, DiagnosticsError> {
+        check_shape(draws, n_steps, n_walkers, 1, MIN_STEPS_RANK)?;
+        self.load(draws, n_steps, n_walkers, 1, 0);
+        Ok(ess_basic(
+            &mut self.autocorr,
+            &self.split,
+            2 * n_walkers,
+            n_steps / 2,
+        ))
+    }
+
     /// Copy parameter `dim` into `self.chains`, chain-major, and its split
     /// halves into `self.split` (chain-major, 2 n_walkers chains of n_steps/2).
     fn load(

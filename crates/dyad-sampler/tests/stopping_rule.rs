@@ -10,7 +10,7 @@
 //! draws on chains this long; Vehtari et al. 2021 sect. 3). Seeded, fixed.
 
 use dyad_sampler::diagnostics::DiagnosticsWorkspace;
-use dyad_sampler::{Convergence, ConvergenceCheck};
+use dyad_sampler::{Convergence, ConvergenceCheck, WatchedDiagnostics, WatchedSeries};
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
 use rand_xoshiro::Xoshiro256PlusPlus;
@@ -58,6 +58,7 @@ fn stops_once_the_slowest_parameter_has_enough_effective_draws_and_not_before() 
         min_effective_draws: 2000.0,
         max_split_rhat: 1.05,
         min_check_interval: 1,
+        ..Convergence::default()
     };
     let (phi, n_walkers) = (0.95, 32);
     // Steps at which the slow parameter has exactly the asked-for count.
@@ -86,7 +87,7 @@ fn stops_once_the_slowest_parameter_has_enough_effective_draws_and_not_before() 
             after.fewest_bulk
         );
         // The projection of the steps still needed lands near the exact count.
-        let needed = before.steps_needed(&rule, 0).expect("a rate") as f64 / 2.0;
+        let needed = before.steps_needed(&rule, 0, None).expect("a rate") as f64 / 2.0;
         assert!(
             (needed / exact - 1.0).abs() < 0.3,
             "seed {seed}: projected {needed} vs exact {exact}"
@@ -131,4 +132,93 @@ fn a_parameter_that_never_moves_never_converges() {
         &mut DiagnosticsWorkspace::new(),
     );
     assert!(!got.met(&Convergence::default()), "{got:?}");
+}
+
+/// Indicators of `n_walkers` walkers over `n_steps` steps, step-major: at
+/// each step every walker is in "the mode" with probability `p_t`, on its
+/// own (so each walker hops in and out all the time), where `p_t` is
+/// `share + drift_sd * a_t` with `a_t` a unit-variance AR(1) of coefficient
+/// `phi`: the walkers' share drifts as a whole.
+fn drifting_indicators(
+    (share, drift_sd, phi): (f64, f64, f64),
+    n_steps: usize,
+    n_walkers: usize,
+    seed: u64,
+) -> WatchedSeries {
+    use rand::Rng;
+    let mut rng = Xoshiro256PlusPlus::seed_from_u64(seed);
+    let drift = ar1(phi, n_steps, 1, seed + 7);
+    let mut values = Vec::with_capacity(n_steps * n_walkers);
+    for a in drift {
+        let p = (share + drift_sd * a).clamp(0.0, 1.0);
+        values.extend((0..n_walkers).map(|_| f64::from(u8::from(rng.gen::<f64>() < p))));
+    }
+    WatchedSeries {
+        name: "share of draws in the mode".into(),
+        values,
+    }
+}
+
+#[test]
+fn a_share_that_drifts_as_a_whole_is_not_settled_however_often_walkers_hop() {
+    // The share wanders with an autocorrelation time of (1 + 0.995) /
+    // (1 - 0.995) = 399 steps (AR(1), analytic); 4000 steps are only 10 of
+    // them. Walker by walker everything looks excellent, which is why the
+    // rule judges the ensemble-mean series instead.
+    let (n_steps, n_walkers) = (4000, 32);
+    let series = drifting_indicators((0.3, 0.1, 0.995), n_steps, n_walkers, 11);
+    let d = WatchedDiagnostics::measure(
+        &series,
+        (n_steps, n_walkers, 1),
+        &mut DiagnosticsWorkspace::new(),
+    );
+    assert!(
+        d.effective_draws_bulk > 1000.0 && d.split_rhat < 1.03,
+        "{d:?}"
+    );
+    assert!(!d.long_enough, "{d:?}");
+    let rule = Convergence::default();
+    assert!(!d.settled(rule.max_watched_error, rule.max_split_rhat));
+
+    // 100 autocorrelation times: the error is believed, and it is the
+    // analytic one, sqrt((var_drift * tau_drift + p (1 - p) / walkers) / T)
+    // = sqrt((0.01 * 399 + 0.21 / 32) / 40 000) = 0.0100, to Sokal's
+    // estimator's scatter (about 20 % at this length).
+    let n_steps = 40_000;
+    let series = drifting_indicators((0.3, 0.1, 0.995), n_steps, n_walkers, 12);
+    let d = WatchedDiagnostics::measure(
+        &series,
+        (n_steps, n_walkers, 1),
+        &mut DiagnosticsWorkspace::new(),
+    );
+    let analytic = ((0.01 * 399.0 + 0.21 / 32.0) / n_steps as f64).sqrt();
+    assert!(d.long_enough, "{d:?}");
+    assert!(
+        (d.standard_error / analytic - 1.0).abs() < 0.35,
+        "{} vs {analytic}",
+        d.standard_error
+    );
+}
+
+#[test]
+fn independent_indicators_settle_with_the_binomial_error() {
+    // No drift: each draw is in the mode with probability 0.3 on its own,
+    // so the error of the share is sqrt(p (1 - p) / N) (binomial; common
+    // practice) = 0.00128 for N = 128 000 draws.
+    let (n_steps, n_walkers) = (4000, 32);
+    let series = drifting_indicators((0.3, 0.0, 0.0), n_steps, n_walkers, 13);
+    let d = WatchedDiagnostics::measure(
+        &series,
+        (n_steps, n_walkers, 1),
+        &mut DiagnosticsWorkspace::new(),
+    );
+    let binomial = (0.3 * 0.7 / (n_steps * n_walkers) as f64).sqrt();
+    assert!(d.long_enough, "{d:?}");
+    assert!(
+        (d.standard_error / binomial - 1.0).abs() < 0.15,
+        "{d:?} vs {binomial}"
+    );
+    assert!((d.mean - 0.3).abs() < 4.0 * binomial);
+    let rule = Convergence::default();
+    assert!(d.settled(rule.max_watched_error, rule.max_split_rhat));
 }
