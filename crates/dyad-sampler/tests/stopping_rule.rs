@@ -222,3 +222,37 @@ fn independent_indicators_settle_with_the_binomial_error() {
     let rule = Convergence::default();
     assert!(d.settled(rule.max_watched_error, rule.max_split_rhat));
 }
+
+#[test]
+fn a_share_that_slides_steadily_fails_the_drift_test() {
+    // Every walker on its own, but the share slides linearly from 0.30 to
+    // 0.26 over the span: within any short stretch the draws look
+    // independent (long enough, error 0.0015), yet the first tenth's share
+    // (0.298) and the last half's (0.270) differ by about 5 standard errors
+    // of the difference, sqrt(0.0067 * 1.4 * (1/400 + 1/2000)) = 0.0053
+    // (Geweke 1992; variance of the share 0.21 / 32 + 0.04^2 / 12).
+    use rand::Rng;
+    let (n_steps, n_walkers) = (4000, 32);
+    let mut rng = Xoshiro256PlusPlus::seed_from_u64(21);
+    let mut values = Vec::with_capacity(n_steps * n_walkers);
+    for t in 0..n_steps {
+        let p = 0.30 - 0.04 * t as f64 / n_steps as f64;
+        values.extend((0..n_walkers).map(|_| f64::from(u8::from(rng.gen::<f64>() < p))));
+    }
+    let series = WatchedSeries {
+        name: "sliding share".into(),
+        values,
+    };
+    let d = WatchedDiagnostics::measure(
+        &series,
+        (n_steps, n_walkers, 1),
+        &mut DiagnosticsWorkspace::new(),
+    );
+    let rule = Convergence::default();
+    assert!(
+        d.long_enough && d.standard_error < rule.max_watched_error,
+        "{d:?}"
+    );
+    assert!(d.drift_z > 3.0, "{d:?}");
+    assert!(!d.settled(rule.max_watched_error, rule.max_split_rhat));
+}

@@ -15,6 +15,11 @@ use serde::{Deserialize, Serialize};
 use crate::diagnostics::DiagnosticsWorkspace;
 use crate::history::History;
 
+/// Largest |z| of the drift test ([`WatchedDiagnostics::drift_z`]) a
+/// settled quantity may have: two standard errors (common practice for
+/// Geweke's diagnostic).
+pub const MAX_DRIFT_Z: f64 = 2.0;
+
 /// The cold chain's kept draws at a check of the stopping rule (the
 /// history after the rule's burn-in), as a [`Watch`] reads them.
 #[derive(Clone, Copy)]
@@ -92,6 +97,9 @@ pub struct WatchedCheck {
     pub largest_tau: f64,
     /// Largest split R-hat of a quantity (walkers as chains).
     pub largest_rhat: f64,
+    /// Largest |z| of a quantity's drift test.
+    #[serde(default)]
+    pub largest_drift_z: f64,
 }
 
 /// Diagnostics of one watched quantity over the kept draws.
@@ -120,6 +128,15 @@ pub struct WatchedDiagnostics {
     /// Whether the series is more than 50 `ensemble_tau` long (and Sokal's
     /// window was found), i.e. whether `standard_error` can be believed.
     pub long_enough: bool,
+    /// Drift test of the ensemble-mean series: the mean of its first tenth
+    /// minus that of its last half, over the standard error of the
+    /// difference (Geweke 1992, "Evaluating the accuracy of sampling-based
+    /// approaches to the calculation of posterior moments", Bayesian
+    /// Statistics 4; the errors from the whole series' autocorrelation
+    /// time). A share still relaxing after the ladder's freeze drifts more
+    /// slowly than the autocorrelation of a short span shows; this is what
+    /// sees it.
+    pub drift_z: f64,
     /// Bulk effective draws, walker by walker (for comparison; the rule
     /// does not use them).
     pub effective_draws_bulk: f64,
@@ -152,6 +169,7 @@ impl WatchedDiagnostics {
             standard_error: f64::INFINITY,
             ensemble_tau: f64::INFINITY,
             long_enough: false,
+            drift_z: f64::INFINITY,
             effective_draws_bulk: bulk,
             split_rhat: rhat,
         };
@@ -169,6 +187,7 @@ impl WatchedDiagnostics {
             d.standard_error = 0.0;
             d.ensemble_tau = 1.0;
             d.long_enough = true;
+            d.drift_z = 0.0;
             return d;
         }
         let var = ensemble_mean
@@ -180,18 +199,40 @@ impl WatchedDiagnostics {
         // to its own value) has an infinite autocorrelation time.
         if let Ok(tau) = workspace.autocorr_time(&ensemble_mean, n_steps, 1) {
             if tau.tau.is_finite() {
-                d.standard_error = (var * tau.tau.max(1.0) / n).sqrt();
+                let tau_steps = tau.tau.max(1.0);
+                d.standard_error = (var * tau_steps / n).sqrt();
                 d.ensemble_tau = tau.tau * thin as f64;
                 d.long_enough = tau.long_enough;
+                d.drift_z = drift_z(&ensemble_mean, var, tau_steps);
             }
         }
         d
     }
 
     /// Whether this quantity meets the rule: a believable error within
-    /// `max_error` and walkers that agree to `max_rhat`.
+    /// `max_error`, no drift beyond [`MAX_DRIFT_Z`] and walkers that agree
+    /// to `max_rhat`.
     pub fn settled(&self, max_error: f64, max_rhat: f64) -> bool {
-        self.long_enough && self.standard_error <= max_error && self.split_rhat <= max_rhat
+        self.long_enough
+            && self.standard_error <= max_error
+            && self.drift_z.abs() <= MAX_DRIFT_Z
+            && self.split_rhat <= max_rhat
+    }
+}
+
+/// Geweke's z of `series` (variance `var`, autocorrelation time `tau` in
+/// snapshots): first tenth against last half, each segment's error
+/// `sqrt(var tau / length)`.
+fn drift_z(series: &[f64], var: f64, tau: f64) -> f64 {
+    let n = series.len();
+    let (a, b) = ((n / 10).max(1), (n / 2).max(1));
+    let mean = |s: &[f64]| s.iter().sum::<f64>() / s.len() as f64;
+    let diff = mean(&series[..a]) - mean(&series[n - b..]);
+    let se = (var * tau * (1.0 / a as f64 + 1.0 / b as f64)).sqrt();
+    if se > 0.0 {
+        diff / se
+    } else {
+        0.0
     }
 }
 
@@ -210,6 +251,7 @@ impl WatchedCheck {
                     long_enough: true,
                     largest_tau: 0.0,
                     largest_rhat: 0.0,
+                    largest_drift_z: 0.0,
                 },
                 |c, d| Self {
                     count: c.count,
@@ -217,6 +259,7 @@ impl WatchedCheck {
                     long_enough: c.long_enough && d.long_enough,
                     largest_tau: c.largest_tau.max(d.ensemble_tau),
                     largest_rhat: c.largest_rhat.max(d.split_rhat),
+                    largest_drift_z: c.largest_drift_z.max(d.drift_z.abs()),
                 },
             )
         })
@@ -225,7 +268,10 @@ impl WatchedCheck {
     /// Whether every watched quantity meets the rule (see
     /// [`WatchedDiagnostics::settled`]).
     pub fn settled(&self, max_error: f64, max_rhat: f64) -> bool {
-        self.long_enough && self.largest_error <= max_error && self.largest_rhat <= max_rhat
+        self.long_enough
+            && self.largest_error <= max_error
+            && self.largest_drift_z <= MAX_DRIFT_Z
+            && self.largest_rhat <= max_rhat
     }
 }
 
