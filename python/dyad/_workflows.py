@@ -19,11 +19,12 @@ from ._results import FitResult, PeriodComparison, Posterior, Prediction
 PathLike = Union[str, "os.PathLike[str]"]
 
 
-def _interrupted(folder: Optional[Any]) -> None:
+def _interrupted(error: KeyboardInterrupt) -> None:
+    folder = getattr(error, "run_folder", None)
     if folder is not None:
         print(
             f"\nstopped; the checkpoint in {folder} is kept: "
-            f"dyad.resume({str(folder)!r}) continues the run",
+            f"dyad.resume({folder!r}) continues the run",
             file=sys.stderr,
         )
 
@@ -53,8 +54,8 @@ def fit(
             overwrite,
             reporter,
         )
-    except KeyboardInterrupt:
-        _interrupted(folder if folder is not None else "the run folder")
+    except KeyboardInterrupt as e:
+        _interrupted(e)
         raise
     return FitResult(native)
 
@@ -133,8 +134,8 @@ def resume(
     reporter = reporter_for(progress)
     try:
         native = _native.resume(os.fspath(folder), max_steps, reporter)
-    except KeyboardInterrupt:
-        _interrupted(folder)
+    except KeyboardInterrupt as e:
+        _interrupted(e)
         raise
     return FitResult(native)
 

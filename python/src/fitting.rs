@@ -11,12 +11,13 @@ use dyad_fit::periods::{PeriodComparison, PeriodOptions};
 use dyad_fit::predict::{PredictOptions, Prediction};
 use dyad_fit::{FitRequest, FitResult, FitRun, PosteriorReport, RunConfig};
 use numpy::{PyArray1, PyArrayMethods};
+use pyo3::exceptions::PyKeyboardInterrupt;
 use pyo3::prelude::*;
 use pyo3::types::PyDict;
 use serde_json::json;
 
 use crate::convert::{numbers, settings_text, table};
-use crate::errors::{column_error, model_error, DyadError, SETTINGS};
+use crate::errors::{column_error, fit_error, model_error, DyadError, SETTINGS};
 use crate::runner;
 
 /// JSON text of a serialisable record.
@@ -72,6 +73,18 @@ fn result_dict<'py>(py: Python<'py>, r: &FitResult) -> PyResult<Bound<'py, PyDic
     Ok(d)
 }
 
+/// A `KeyboardInterrupt` of a run into `folder` carries the folder (as
+/// `run_folder`), for the package to say where the checkpoint is.
+fn with_run_folder(py: Python<'_>, error: PyErr, folder: &Path) -> PyErr {
+    if error.is_instance_of::<PyKeyboardInterrupt>(py) {
+        // Setting an attribute of an exception object does not fail.
+        let _ = error
+            .value(py)
+            .setattr("run_folder", folder.display().to_string());
+    }
+    error
+}
+
 /// Fits the configuration file `config` (into `folder` instead of its
 /// `[output] folder` when given).
 #[pyfunction]
@@ -83,12 +96,13 @@ pub(crate) fn fit_file<'py>(
     overwrite: bool,
     reporter: Option<Bound<'py, PyAny>>,
 ) -> PyResult<Bound<'py, PyDict>> {
+    let request = FitRequest::from_file(&config).map_err(fit_error)?;
+    let folder = folder.unwrap_or_else(|| request.config.output.folder.clone());
+    let request = request.into_folder(&folder, overwrite);
     let result = runner::run(py, reporter.as_ref(), move |observer, cancel| {
-        let mut request = FitRequest::from_file(&config)?;
-        let folder = folder.unwrap_or_else(|| request.config.output.folder.clone());
-        request = request.into_folder(folder, overwrite);
         request.prepare()?.run(observer, cancel)
-    })?;
+    })
+    .map_err(|e| with_run_folder(py, e, &folder))?;
     result_dict(py, &result)
 }
 
@@ -127,9 +141,11 @@ pub(crate) fn resume<'py>(
     max_steps: Option<u64>,
     reporter: Option<Bound<'py, PyAny>>,
 ) -> PyResult<Bound<'py, PyDict>> {
+    let run_folder = folder.clone();
     let result = runner::run(py, reporter.as_ref(), move |observer, cancel| {
         FitRun::resume(&folder, max_steps)?.run(observer, cancel)
-    })?;
+    })
+    .map_err(|e| with_run_folder(py, e, &run_folder))?;
     result_dict(py, &result)
 }
 
