@@ -12,14 +12,23 @@ from . import _native
 
 
 def _shaped(t_jd: Any, x: np.ndarray, y: np.ndarray) -> Tuple[Any, Any]:
-    shape = np.shape(t_jd)
-    if shape == ():
+    """The results in the shape of the epochs (floats for one number)."""
+    if isinstance(t_jd, np.ndarray):
+        if t_jd.ndim == 1:
+            return x, y
+        return x.reshape(t_jd.shape), y.reshape(t_jd.shape)
+    if isinstance(t_jd, (float, int, np.generic)):
         return float(x[0]), float(y[0])
+    shape = np.shape(t_jd)
     return x.reshape(shape), y.reshape(shape)
 
 
 def _flat(value: Any) -> Any:
-    return np.ravel(value) if np.ndim(value) > 1 else value
+    """Arrays of more than one dimension, flattened (the native module
+    takes one)."""
+    if isinstance(value, np.ndarray) and value.ndim > 1:
+        return value.ravel()
+    return value
 
 
 def positions(

@@ -3,7 +3,10 @@
 //! of numbers or texts, a settings dict into configuration text.
 
 use dyad_fit::columns::Column;
-use numpy::{PyArrayDescrMethods, PyReadonlyArray1, PyUntypedArray, PyUntypedArrayMethods};
+use numpy::{
+    PyArray1, PyArrayDescrMethods, PyArrayMethods, PyReadonlyArray1, PyUntypedArray,
+    PyUntypedArrayMethods,
+};
 use pyo3::prelude::*;
 use pyo3::types::{PyBool, PyDict, PyFloat, PyInt, PyList, PyString, PyTuple};
 
@@ -73,21 +76,52 @@ fn as_f64<'py>(
         .map_err(|e| bad(place, format!("cannot be read as float64 ({e})")))
 }
 
-/// Real numbers for the kinematics: a float64 view of `value` (a scalar is
-/// an array of one value).
-pub(crate) fn numbers<'py>(
-    place: &str,
-    value: &Bound<'py, PyAny>,
-) -> PyResult<PyReadonlyArray1<'py, f64>> {
+/// Real numbers for the kinematics: one number, or a float64 view of an array.
+pub(crate) enum Numbers<'py> {
+    /// A Python number (or NumPy scalar).
+    One(f64),
+    /// A one-dimensional float64 array.
+    Many(PyReadonlyArray1<'py, f64>),
+}
+
+impl Numbers<'_> {
+    /// The values.
+    pub(crate) fn as_slice(&self) -> PyResult<&[f64]> {
+        match self {
+            Numbers::One(x) => Ok(std::slice::from_ref(x)),
+            Numbers::Many(a) => Ok(a.as_slice()?),
+        }
+    }
+}
+
+/// Real numbers for the kinematics from a number or an array of numbers.
+/// A float or an int, and a contiguous float64 array, are taken as they
+/// are (no Python call: the kinematics are meant for many small calls
+/// too); anything else goes through `numpy.asarray` and its dtype is
+/// checked.
+pub(crate) fn numbers<'py>(place: &str, value: &Bound<'py, PyAny>) -> PyResult<Numbers<'py>> {
+    if value.is_instance_of::<PyFloat>()
+        || (value.is_instance_of::<PyInt>() && !value.is_instance_of::<PyBool>())
+    {
+        if let Ok(x) = value.extract::<f64>() {
+            return Ok(Numbers::One(x));
+        }
+    }
+    if let Ok(array) = value.cast::<PyArray1<f64>>() {
+        if let Ok(view) = array.try_readonly() {
+            if view.as_slice().is_ok() {
+                return Ok(Numbers::Many(view));
+            }
+        }
+    }
     let py = value.py();
-    let array = py.import("numpy")?.call_method1("atleast_1d", (value,));
-    let array = match array {
-        Ok(a) => a,
-        Err(e) => return Err(bad(place, format!("not an array of numbers ({e})"))),
-    };
+    let array = py
+        .import("numpy")?
+        .call_method1("atleast_1d", (value,))
+        .map_err(|e| bad(place, format!("not an array of numbers ({e})")))?;
     let array = as_array(place, &array)?;
     match kind_of(place, &array)? {
-        Kind::Real => as_f64(place, array),
+        Kind::Real => Ok(Numbers::Many(as_f64(place, array)?)),
         Kind::Text | Kind::Object => Err(bad(
             place,
             format!("values of dtype {} are not numbers", array.dtype().str()?),

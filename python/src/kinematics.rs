@@ -9,10 +9,10 @@
 
 use dyad_orbit::kepler::LANES;
 use dyad_orbit::{BlockVisitor, CampbellElements, Orbit};
-use numpy::{PyArray1, PyReadonlyArray1};
+use numpy::PyArray1;
 use pyo3::prelude::*;
 
-use crate::convert::numbers;
+use crate::convert::{numbers, Numbers};
 use crate::errors::bad;
 
 /// Two arrays of the same length: (dRA*, dDec) or (v1, v2).
@@ -185,7 +185,7 @@ fn kinematics<'py>(
     velocity: bool,
 ) -> PyResult<ArrayPair<'py>> {
     let t = numbers("t_jd", t_jd)?;
-    let arrays: Vec<PyReadonlyArray1<'py, f64>> = names
+    let arrays: Vec<Numbers<'py>> = names
         .iter()
         .zip(args)
         .map(|(name, value)| numbers(name, value))
@@ -193,8 +193,8 @@ fn kinematics<'py>(
     let t = t.as_slice()?;
     let values: Vec<&[f64]> = arrays
         .iter()
-        .map(|a| a.as_slice())
-        .collect::<Result<_, _>>()?;
+        .map(Numbers::as_slice)
+        .collect::<PyResult<_>>()?;
     check_epochs(t)?;
     check_elements(names, &values, t.len())?;
     let elements = Elements { names, values };
@@ -206,6 +206,17 @@ fn kinematics<'py>(
     };
     Ok((PyArray1::from_vec(py, x), PyArray1::from_vec(py, y)))
 }
+
+/// The Campbell elements, in the order [`orbit`] takes them.
+const ELEMENTS: [&str; 7] = [
+    "period_days",
+    "t_peri_jd",
+    "eccentricity",
+    "semi_major_axis",
+    "inclination_deg",
+    "omega_deg",
+    "node_deg",
+];
 
 /// Offsets (dRA*, dDec) of the secondary from the primary, in the unit of
 /// `semi_major_axis`, at the epochs `t_jd`.
@@ -222,15 +233,6 @@ pub(crate) fn positions<'py>(
     omega_deg: Bound<'py, PyAny>,
     node_deg: Bound<'py, PyAny>,
 ) -> PyResult<ArrayPair<'py>> {
-    let names = [
-        "period_days",
-        "t_peri_jd",
-        "eccentricity",
-        "semi_major_axis",
-        "inclination_deg",
-        "omega_deg",
-        "node_deg",
-    ];
     let args = [
         &period_days,
         &t_peri_jd,
@@ -240,7 +242,7 @@ pub(crate) fn positions<'py>(
         &omega_deg,
         &node_deg,
     ];
-    kinematics(py, &t_jd, &names, &args, false)
+    kinematics(py, &t_jd, &ELEMENTS, &args, false)
 }
 
 /// Radial velocities (primary, secondary) in km/s at the epochs `t_jd`.
@@ -261,18 +263,8 @@ pub(crate) fn velocities<'py>(
     // make a valid orbit.
     let one = pyo3::types::PyFloat::new(py, 1.0).into_any();
     let zero = pyo3::types::PyFloat::new(py, 0.0).into_any();
-    let names = [
-        "period_days",
-        "t_peri_jd",
-        "eccentricity",
-        "semi_major_axis",
-        "inclination_deg",
-        "omega_deg",
-        "node_deg",
-        "gamma_kms",
-        "k1_kms",
-        "k2_kms",
-    ];
+    let [p, t, e, a, i, w, n] = ELEMENTS;
+    let names = [p, t, e, a, i, w, n, "gamma_kms", "k1_kms", "k2_kms"];
     let args = [
         &period_days,
         &t_peri_jd,

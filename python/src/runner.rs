@@ -58,7 +58,8 @@ impl Observer for Forward {
     fn sampling_progress(&mut self, p: &Progress) {
         self.send(Event::Progress {
             step: p.step,
-            max_steps: p.target_steps.unwrap_or(p.max_steps),
+            // The steps the stopping rule expects to need, never fewer than done.
+            max_steps: p.target_steps.unwrap_or(p.max_steps).max(p.step),
             acceptance: p.acceptance,
             eta_seconds: p.eta.map(|d| d.as_secs_f64()),
         });
