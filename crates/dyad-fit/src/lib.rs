@@ -46,6 +46,7 @@ pub mod advise;
 pub mod astrometry_views;
 pub mod calibrate;
 pub mod check;
+pub mod columns;
 pub mod density;
 pub mod error;
 pub mod error_summary;
