@@ -187,8 +187,9 @@ enum Command {
     /// files and changes to the base configuration; columns in
     /// configs/README.md), each into OUTPUT/systems/NAME; finished systems
     /// are skipped and stopped ones resumed. Exit status 0: all of the
-    /// shard's systems finished; 1: some failed (the others ran);
-    /// 3: stopped by Ctrl-C or SIGTERM (checkpointed: run it again).
+    /// shard's systems finished; 1: some failed (the others ran) or the
+    /// batch could not start; 3: stopped by Ctrl-C or SIGTERM
+    /// (checkpointed: run it again).
     Batch(BatchArgs),
     /// Merge a batch's results into OUTPUT/results.csv and list the systems
     /// that did not finish in OUTPUT/failed.csv (exit status 1 if any).
@@ -486,10 +487,10 @@ fn sample(run: FitRun, quiet: bool) -> Result<()> {
     Ok(())
 }
 
-/// A cancel flag set by Ctrl-C or SIGTERM (a scheduler preempting or
-/// cancelling the job; ctrlc's `termination` feature). The handler is installed once per process;
-/// if that fails the run simply cannot be interrupted cleanly, which is no
-/// reason to refuse to run.
+/// A cancel flag set by Ctrl-C or by SIGTERM (what a scheduler sends to a
+/// job it preempts or cancels; ctrlc's `termination` feature). The handler
+/// is installed once per process; if that fails the run simply cannot be
+/// interrupted cleanly, which is no reason to refuse to run.
 fn cancel_on_ctrl_c() -> CancelFlag {
     static FLAG: OnceLock<CancelFlag> = OnceLock::new();
     FLAG.get_or_init(|| {

@@ -197,10 +197,12 @@ pub fn run_shard(
         manifest.systems.len()
     ));
     for (done, system) in mine.iter().enumerate() {
+        let name = &system.name;
         if cancel.is_cancelled() {
+            // Asked to stop between two systems: this one never started.
+            summary.stopped = Some((name.clone(), "was not started".to_owned()));
             break;
         }
-        let name = &system.name;
         observer.message(&format!("{name} ({} of {}):", done + 1, mine.len()));
         let mut prefixed = Prefixed {
             inner: &mut *observer,
@@ -306,9 +308,11 @@ fn run_system(
     }
     let request = FitRequest::from_file(&config_path)?;
     let max_steps = request.config.sampler.max_steps as u64;
+    // A checkpoint that cannot be read is no reason to give up the
+    // system: from the start, the same seed gives the same draws.
     let resumable = started
         && files.checkpoint().is_file()
-        && dyad_sampler::checkpoint_step(files.checkpoint())? < max_steps;
+        && dyad_sampler::checkpoint_step(files.checkpoint()).is_ok_and(|done| done < max_steps);
     let result = if resumable {
         let run = FitRun::resume(&run_folder, None)?;
         if let Some(done) = run.steps_done() {
@@ -317,8 +321,7 @@ fn run_system(
         run.run(observer, cancel)?
     } else {
         // Never started, stopped before its first checkpoint, or killed
-        // between its last checkpoint and its outcome: from the start
-        // (the same seed gives the same draws).
+        // between its last checkpoint and its outcome: from the start.
         let mut request = request.into_folder(&run_folder, true);
         if let Some(interval) = options.checkpoint_interval {
             request = request.checkpoint_interval(interval);
