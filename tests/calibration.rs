@@ -6,7 +6,7 @@
 //! non-uniform and the intervals miss; an honest pipeline passes. Seeded and
 //! deterministic: the same settings give the same ranks on any machine and
 //! thread count. Takes about 15 s in --release on 2 cores. The unit tests
-//! in src/calibrate.rs show that the rank, chi-square and coverage code does
+//! in crates/dyad-fit/src/calibrate/statistics.rs show that the rank, chi-square and coverage code does
 //! reject corrupted posteriors.
 
 use std::fs;
