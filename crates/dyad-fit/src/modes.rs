@@ -346,7 +346,7 @@ mod tests {
                 let mut z = state;
                 z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
                 z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-                if (z ^ (z >> 31)) % 4 == 0 {
+                if (z ^ (z >> 31)).is_multiple_of(4) {
                     2
                 } else {
                     1

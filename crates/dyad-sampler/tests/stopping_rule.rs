@@ -256,3 +256,27 @@ fn a_share_that_slides_steadily_fails_the_drift_test() {
     assert!(d.drift_z > 3.0, "{d:?}");
     assert!(!d.settled(rule.max_watched_error, rule.max_split_rhat));
 }
+
+#[test]
+fn steps_left_follow_the_burn_in_of_a_tempered_run() {
+    // Half the effective draws asked for, over a kept span of 1 000 steps:
+    // the kept span must double to 2 000. After a ladder's freeze at step
+    // 10 000 with a burn-in share of one half, the burn-in is the freeze
+    // until the share overtakes it, so the kept span grows step for step:
+    // 12 000 steps. Without a share (the first half of the history is
+    // burn-in) the history must grow by twice the span: 14 000. Arithmetic
+    // of the burn-in rules (RunConfig::burn_in_fraction).
+    let check = ConvergenceCheck {
+        step: 11_000,
+        span: 1_000,
+        fewest_bulk: 500.0,
+        fewest_tail: 800.0,
+        largest_rhat: 1.01,
+        watched: None,
+    };
+    let rule = Convergence::default();
+    assert_eq!(check.steps_needed(&rule, 10_000, Some(0.5)), Some(12_000));
+    assert_eq!(check.steps_needed(&rule, 10_000, None), Some(14_000));
+    // Untempered (history from step 0), share one half: twice the span.
+    assert_eq!(check.steps_needed(&rule, 0, Some(0.5)), Some(4_000));
+}
