@@ -48,6 +48,7 @@ pub mod astrometry_views;
 pub mod batch;
 pub mod calibrate;
 pub mod check;
+pub mod columns;
 pub mod density;
 pub mod error;
 pub mod error_summary;
