@@ -90,10 +90,11 @@ fn candidate_dates(o: &AdviseOptions, scale: TimeScale) -> Result<Vec<f64>> {
     Ok(dates)
 }
 
-fn median(mut v: Vec<f64>) -> Option<f64> {
-    v.retain(|x| x.is_finite());
-    v.sort_by(f64::total_cmp);
-    v.get(v.len() / 2).copied()
+/// Type-7 median of the finite values (Hyndman & Fan 1996), none if there
+/// are none.
+fn median(v: Vec<f64>) -> Option<f64> {
+    let m = dyad_common::quantile::median_of_finite(v);
+    m.is_finite().then_some(m)
 }
 
 /// Median quoted error of one offset of the run's positions, mas (a

@@ -216,9 +216,11 @@ pub(super) fn finish(
         .filter(|t| t.is_finite())
         .fold(0.0, f64::max);
 
+    // Type-7 median (Hyndman & Fan 1996): the threshold of a warning only,
+    // so the draws do not depend on it.
     let mut sorted = acceptance.clone();
     sorted.sort_by(f64::total_cmp);
-    let median = sorted[sorted.len() / 2];
+    let median = dyad_common::quantile::quantile_sorted(&sorted, 0.5);
     let stuck_run = config.stuck_steps.max((20.0 * tau_max).ceil() as u64);
     let mut stuck_walkers = Vec::new();
     for (w, walker) in cold.walkers.iter().enumerate() {
