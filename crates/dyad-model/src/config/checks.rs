@@ -105,15 +105,37 @@ fn number(field: &Field<Number>) -> Option<f64> {
     value(field).map(|Number(v)| v)
 }
 
+/// Where the measurements of a configuration come from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum DataSource {
+    /// The files named in `[data]`.
+    Files,
+    /// Arrays given beside the configuration: `[data]` is optional and
+    /// names no files.
+    Arrays,
+}
+
 /// The checked configuration of a parsed file.
-pub(super) fn run_config(raw: RawConfig, src: Source<'_>) -> Result<RunConfig, ModelError> {
+pub(super) fn run_config(
+    raw: RawConfig,
+    src: Source<'_>,
+    source: DataSource,
+) -> Result<RunConfig, ModelError> {
     let path = src.file;
     let base = path.parent().map(Path::to_owned).unwrap_or_default();
     let root = Table { src, name: "" };
-    let Some(raw_data) = &raw.data else {
-        return Err(root.at("data", None, "missing [data] section naming the data files"));
+    let empty;
+    let raw_data = match (&raw.data, source) {
+        (Some(raw_data), _) => raw_data,
+        (None, DataSource::Files) => {
+            return Err(root.at("data", None, "missing [data] section naming the data files"))
+        }
+        (None, DataSource::Arrays) => {
+            empty = RawData::default();
+            &empty
+        }
     };
-    let data = read_data(&Table { src, name: "data" }, raw_data, &base)?;
+    let data = read_data(&Table { src, name: "data" }, raw_data, &base, source)?;
     let mut priors = match &raw.priors {
         Some(p) => read_priors(
             &Table {
@@ -188,7 +210,26 @@ fn read_output(raw: Option<&RawOutput>, base: &Path) -> OutputSettings {
     }
 }
 
-fn read_data(t: &Table<'_>, raw: &RawData, base: &Path) -> Result<DataSettings, ModelError> {
+fn read_data(
+    t: &Table<'_>,
+    raw: &RawData,
+    base: &Path,
+    source: DataSource,
+) -> Result<DataSettings, ModelError> {
+    if source == DataSource::Arrays {
+        for (key, given) in [
+            ("astrometry", raw.astrometry.is_some()),
+            ("velocities", raw.velocities.is_some()),
+        ] {
+            if given {
+                return Err(t.at(
+                    key,
+                    None,
+                    "the measurements are given as arrays here; remove the file name",
+                ));
+            }
+        }
+    }
     let astrometry = match &raw.astrometry {
         Some(name) => {
             Some(t.existing_file("astrometry", Some(name.span()), name.get_ref(), base)?)
@@ -215,7 +256,7 @@ fn read_data(t: &Table<'_>, raw: &RawData, base: &Path) -> Result<DataSettings, 
                 .collect::<Result<_, _>>()?,
         },
     };
-    if astrometry.is_none() && velocities.is_empty() {
+    if source == DataSource::Files && astrometry.is_none() && velocities.is_empty() {
         return Err(t.at(
             "astrometry",
             None,

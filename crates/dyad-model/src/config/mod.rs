@@ -239,7 +239,16 @@ impl RunConfig {
     /// folder data paths are relative to, and is named in errors).
     pub fn from_toml_str(text: &str, path: &Path) -> Result<RunConfig, ModelError> {
         let source = Source { file: path, text };
-        checks::run_config(source.parse()?, source)
+        checks::run_config(source.parse()?, source, checks::DataSource::Files)
+    }
+
+    /// Parses the settings of a fit whose measurements are given as arrays
+    /// (bindings, notebooks): as [`RunConfig::from_toml_str`], but `[data]`
+    /// is optional and may name no files (its catalogue parallax and
+    /// reference epoch apply). `label` names the settings in errors.
+    pub fn for_arrays_from_toml_str(text: &str, label: &Path) -> Result<RunConfig, ModelError> {
+        let source = Source { file: label, text };
+        checks::run_config(source.parse()?, source, checks::DataSource::Arrays)
     }
 
     /// Reads the data files named in `[data]`.

@@ -22,7 +22,7 @@ pub(super) struct RawConfig {
 }
 
 /// `[data]`.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub(super) struct RawData {
     pub(super) astrometry: Field<String>,
