@@ -7,7 +7,8 @@
 //! (validate a configuration without sampling), `simulate` (invented data
 //! from known elements), `periods` (compare period windows by evidence) and
 //! `predict` (where the companion will be at given epochs) and `advise`
-//! (which date and measurement would teach most).
+//! (which date and measurement would teach most); `batch` (a manifest of
+//! systems, in shards) and `merge` (a batch's results into one table).
 
 // The argument docs below are clap's help texts, where `[sampler]` names a
 // table of the configuration file, not a documentation link.
@@ -22,6 +23,7 @@ use std::sync::OnceLock;
 use std::time::Duration;
 
 use dyad_fit::advise::{self, AdviseOptions};
+use dyad_fit::batch;
 use dyad_fit::calibrate::{self, CalibrateOptions};
 use dyad_fit::periods::{self, PeriodOptions};
 use dyad_fit::predict::{self, PredictOptions};
@@ -181,6 +183,20 @@ enum Command {
         #[arg(long)]
         overwrite: bool,
     },
+    /// Fit every system of a manifest (CSV: one row per system, its data
+    /// files and changes to the base configuration; columns in
+    /// configs/README.md), each into OUTPUT/systems/NAME; finished systems
+    /// are skipped and stopped ones resumed. Exit status 0: all of the
+    /// shard's systems finished; 1: some failed (the others ran) or the
+    /// batch could not start; 3: stopped by Ctrl-C or SIGTERM
+    /// (checkpointed: run it again).
+    Batch(BatchArgs),
+    /// Merge a batch's results into OUTPUT/results.csv and list the systems
+    /// that did not finish in OUTPUT/failed.csv (exit status 1 if any).
+    Merge {
+        /// The batch's output folder.
+        output: PathBuf,
+    },
     /// Write invented measurements of a binary with known elements, as
     /// described by a scenario file (see demo-data/README.md).
     Simulate {
@@ -192,7 +208,34 @@ enum Command {
     },
 }
 
-fn run(cli: Cli) -> Result<()> {
+#[derive(clap::Args)]
+struct BatchArgs {
+    /// The manifest (CSV).
+    manifest: PathBuf,
+    /// The base configuration every system starts from (TOML; its [data]
+    /// file names are not used).
+    #[arg(long)]
+    base: PathBuf,
+    /// The batch's output folder.
+    #[arg(long)]
+    output: PathBuf,
+    /// Run only shard I of N (1-based), e.g. 2/4 (default: from
+    /// SLURM_ARRAY_TASK_ID and SLURM_ARRAY_TASK_COUNT in a Slurm array job,
+    /// else the whole manifest, then merged).
+    #[arg(long)]
+    shard: Option<String>,
+    /// No per-system messages (failures are still reported).
+    #[arg(long)]
+    quiet: bool,
+    /// Seconds between checkpoints (default 5).
+    #[arg(long, hide = true)]
+    checkpoint_seconds: Option<f64>,
+}
+
+/// Exit status of a batch stopped by a signal (checkpointed, resumable).
+const EXIT_STOPPED: u8 = 3;
+
+fn run(cli: Cli) -> Result<ExitCode> {
     if let Some(n) = cli.threads {
         rayon::ThreadPoolBuilder::new()
             .num_threads(n.max(1))
@@ -200,6 +243,8 @@ fn run(cli: Cli) -> Result<()> {
             .context("setting up the worker threads")?;
     }
     match cli.command {
+        Command::Batch(args) => return run_batch(args),
+        Command::Merge { output } => return merge_batch(&output),
         Command::Fit {
             config,
             output,
@@ -351,7 +396,77 @@ fn run(cli: Cli) -> Result<()> {
             }
             Ok(())
         }
+    }?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `dyad batch`: one shard (or, outside a Slurm array and without
+/// --shard, the whole manifest followed by the merge).
+fn run_batch(args: BatchArgs) -> Result<ExitCode> {
+    let from_slurm = batch::Shard::from_slurm(|name| std::env::var(name).ok())?;
+    let shard = match (&args.shard, from_slurm) {
+        (Some(text), _) => batch::Shard::parse(text)?,
+        (None, Some(shard)) => shard,
+        (None, None) => batch::Shard::ALL,
+    };
+    let options = batch::ShardOptions {
+        base: args.base,
+        output: args.output.clone(),
+        shard,
+        checkpoint_interval: args
+            .checkpoint_seconds
+            .map(|s| Duration::from_secs_f64(s.max(0.0))),
+    };
+    let summary = batch::run_shard(
+        &args.manifest,
+        &options,
+        &mut Terminal::new(args.quiet),
+        &cancel_on_ctrl_c(),
+    )?;
+    if let Some((system, at)) = &summary.stopped {
+        note!("shard {shard} stopped: {system} {at}; run the same command again to continue");
+        return Ok(ExitCode::from(EXIT_STOPPED));
     }
+    if shard == batch::Shard::ALL {
+        return merge_batch(&args.output);
+    }
+    note!(
+        "shard {shard}: {} finished now, {} earlier, {} failed",
+        summary.finished.len(),
+        summary.skipped.len(),
+        summary.failed.len()
+    );
+    for (system, reason) in &summary.failed {
+        note!("failed: {system}: {reason}");
+    }
+    Ok(if summary.all_finished() {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::FAILURE
+    })
+}
+
+/// `dyad merge`: the batch's tables; failure when a system did not finish.
+fn merge_batch(output: &std::path::Path) -> Result<ExitCode> {
+    let merged = batch::merge(output)?;
+    say!(
+        "{} of {} systems finished: {}",
+        merged.finished.len(),
+        merged.systems,
+        merged.results_table.display()
+    )?;
+    if merged.unfinished.is_empty() {
+        return Ok(ExitCode::SUCCESS);
+    }
+    say!(
+        "{} did not finish (listed in {}):",
+        merged.unfinished.len(),
+        merged.failures_table.display()
+    )?;
+    for u in &merged.unfinished {
+        say!("  {} ({}): {}", u.system, u.state, u.reason)?;
+    }
+    Ok(ExitCode::FAILURE)
 }
 
 /// Samples a prepared run with a progress line, then says how it ended.
@@ -372,9 +487,10 @@ fn sample(run: FitRun, quiet: bool) -> Result<()> {
     Ok(())
 }
 
-/// A cancel flag set by Ctrl-C. The handler is installed once per process;
-/// if that fails the run simply cannot be interrupted cleanly, which is no
-/// reason to refuse to run.
+/// A cancel flag set by Ctrl-C or by SIGTERM (what a scheduler sends to a
+/// job it preempts or cancels; ctrlc's `termination` feature). The handler
+/// is installed once per process; if that fails the run simply cannot be
+/// interrupted cleanly, which is no reason to refuse to run.
 fn cancel_on_ctrl_c() -> CancelFlag {
     static FLAG: OnceLock<CancelFlag> = OnceLock::new();
     FLAG.get_or_init(|| {
@@ -388,7 +504,7 @@ fn cancel_on_ctrl_c() -> CancelFlag {
 
 fn main() -> ExitCode {
     match run(Cli::parse()) {
-        Ok(()) => ExitCode::SUCCESS,
+        Ok(code) => code,
         // The reader of a pipe stopped early (`dyad check ... | head`): it
         // has what it wanted, so end quietly and successfully.
         Err(e) if terminal::is_broken_pipe(&e) => ExitCode::SUCCESS,

@@ -24,7 +24,8 @@
 //!   a [`PosteriorReport`] of draws, summary and period modes.
 //! - [`periods::compare`], [`predict::predict`], [`advise::advise`],
 //!   [`calibrate::calibrate`], [`check::check`] and [`posterior::report`]
-//!   are the other commands' workflows.
+//!   are the other commands' workflows; [`batch`] runs a manifest of
+//!   systems in shards and merges their results.
 //! - Errors are [`FitError`]s: the lower crates' errors, typed, with what
 //!   the workflow was doing added as context.
 //!
@@ -44,6 +45,7 @@
 
 pub mod advise;
 pub mod astrometry_views;
+pub mod batch;
 pub mod calibrate;
 pub mod check;
 pub mod columns;
