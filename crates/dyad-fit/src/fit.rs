@@ -30,7 +30,7 @@ use crate::error::{bail, Context, Result};
 use crate::observer::{CancelFlag, Observer};
 use crate::plan::{checkpoint_every, SamplingPlan};
 use crate::posterior::PosteriorReport;
-use crate::run_folder::{read_window, write_text, ExistingRun, Provenance, RunFiles};
+use crate::run_folder::{read_json, read_window, write_text, ExistingRun, Provenance, RunFiles};
 
 /// Where a fit keeps its draws.
 #[derive(Debug, Clone, PartialEq)]
@@ -433,15 +433,13 @@ impl Outcome {
     /// Reads `outcome.json` of a run.
     pub fn read(files: &RunFiles) -> Result<Self> {
         let path = files.outcome();
-        let text = fs::read_to_string(&path).with_context(|| {
+        read_json(&path, "outcome record", || {
             format!(
                 "reading {} (the run has not finished a sampling session yet: `dyad resume {}`)",
                 path.display(),
                 files.folder.display()
             )
-        })?;
-        serde_json::from_str(&text)
-            .with_context(|| format!("{}: not a valid outcome record", path.display()))
+        })
     }
 
     fn write(&self, files: &RunFiles) -> Result<()> {

@@ -8,15 +8,14 @@
 //! table of an interrupted and resumed batch equals that of an
 //! uninterrupted one byte for byte.
 
-use std::fs;
 use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
-use crate::error::{Context, Result};
+use crate::error::Result;
 use crate::fit::Outcome;
 use crate::posterior::PosteriorReport;
-use crate::run_folder::write_text;
+use crate::run_folder::{read_json, write_text};
 
 /// The quantities the merged table gives with their intervals, when the
 /// model has them.
@@ -162,11 +161,10 @@ impl SystemRecord {
         if !path.exists() {
             return Ok(None);
         }
-        let text =
-            fs::read_to_string(path).with_context(|| format!("reading {}", path.display()))?;
-        let record = serde_json::from_str(&text)
-            .with_context(|| format!("{}: not a valid system record", path.display()))?;
-        Ok(Some(record))
+        read_json(path, "system record", || {
+            format!("reading {}", path.display())
+        })
+        .map(Some)
     }
 
     /// Writes the record atomically.
