@@ -37,6 +37,6 @@ else:
     ax.set_xlabel("mass [$M_\\odot$]")
     ax.set_ylabel("posterior density")
     ax.legend()
-    out = result.folder / "masses-matplotlib.png"
+    out = result.folder.resolve() / "masses-matplotlib.png"
     fig.savefig(out, dpi=120, bbox_inches="tight")
     print(f"wrote {out}")

@@ -33,7 +33,7 @@ for shards in 1 2 4; do
     timing=$( { time (
         for i in $(seq 1 "$shards"); do
             "$dyad" --threads 1 batch "$work/manifest.csv" --base "$work/base.toml" \
-                --output "$output" --shard "$i/$shards" --quiet 2>/dev/null &
+                --output "$output" --shard "$i/$shards" --quiet >/dev/null 2>&1 &
         done
         wait
     ) ; } 2>&1 )

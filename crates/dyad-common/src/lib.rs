@@ -4,8 +4,9 @@
 //! model, the sampler, the report and the workflows would otherwise each
 //! write for themselves — type-7 sample quantiles ([`quantile`]), the
 //! standard normal distribution function and its inverse ([`normal`]),
-//! SplitMix64 seed mixing ([`seed`]), atomic file writes ([`atomic`]) and
-//! the rounding of a burn-in share to whole steps ([`burn_in_steps`]).
+//! SplitMix64 seed mixing ([`seed`]), atomic file writes ([`atomic`]), the
+//! CSV dialect of every table written ([`csv_table`]) and the rounding of a
+//! burn-in share to whole steps ([`burn_in_steps`]).
 //!
 //! What it is not for: anything about orbits, priors, samplers or reports.
 //! It depends on no other dyad crate, so every one of them can use it.
@@ -18,6 +19,7 @@
 #![deny(missing_docs)]
 
 pub mod atomic;
+pub mod csv_table;
 pub mod normal;
 pub mod quantile;
 pub mod seed;

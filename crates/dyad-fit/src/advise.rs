@@ -8,6 +8,7 @@ use std::path::{Path, PathBuf};
 
 use crate::error::{bail, Context, Result};
 
+use dyad_common::csv_table::CsvText;
 use dyad_model::data::{RelativePosition, Star};
 use dyad_model::likelihood::Model;
 use dyad_orbit::time::TimeScale;
@@ -89,10 +90,11 @@ fn candidate_dates(o: &AdviseOptions, scale: TimeScale) -> Result<Vec<f64>> {
     Ok(dates)
 }
 
-fn median(mut v: Vec<f64>) -> Option<f64> {
-    v.retain(|x| x.is_finite());
-    v.sort_by(f64::total_cmp);
-    v.get(v.len() / 2).copied()
+/// Type-7 median of the finite values (Hyndman & Fan 1996), none if there
+/// are none.
+fn median(v: Vec<f64>) -> Option<f64> {
+    let m = dyad_common::quantile::median_of_finite(v);
+    m.is_finite().then_some(m)
 }
 
 /// Median quoted error of one offset of the run's positions, mas (a
@@ -325,7 +327,7 @@ pub fn advise(folder: &Path, o: &AdviseOptions) -> Result<Advice> {
     }
 
     let text = advice_text(&kinds, &targets, &now, scale, n, o);
-    let csv = advice_csv(&kinds, &targets, &now, scale);
+    let csv = advice_csv(&kinds, &targets, &now, scale)?;
     write_text(&out_csv, &csv)?;
     write_text(&out_txt, &text)?;
     let input = AdvicePlotInput {
@@ -459,23 +461,38 @@ fn advice_text(
     s
 }
 
-fn advice_csv(kinds: &[Kind], targets: &[(&str, &str)], now: &[f64], scale: TimeScale) -> String {
-    let mut s = format!("measurement,date_{},date_jd", scale.column_name());
-    for (name, _) in targets {
-        let _ = write!(
-            s,
-            ",{name}_width_now,{name}_width_expected,{name}_shrinkage"
-        );
-    }
-    s.push_str(",effective_draws_min\n");
+fn advice_csv(
+    kinds: &[Kind],
+    targets: &[(&str, &str)],
+    now: &[f64],
+    scale: TimeScale,
+) -> Result<String> {
+    let mut csv = CsvText::new();
+    csv.record(
+        [
+            "measurement".to_owned(),
+            format!("date_{}", scale.column_name()),
+            "date_jd".into(),
+        ]
+        .into_iter()
+        .chain(targets.iter().flat_map(|(name, _)| {
+            ["width_now", "width_expected", "shrinkage"].map(|what| format!("{name}_{what}"))
+        }))
+        .chain(["effective_draws_min".to_owned()]),
+    )?;
     for k in kinds {
         for v in &k.values {
-            let _ = write!(s, "{},{},{}", k.key, scale.from_jd(v.t_jd), v.t_jd);
+            csv.field(&k.key)?;
+            csv.field(scale.from_jd(v.t_jd).to_string())?;
+            csv.field(v.t_jd.to_string())?;
             for (t, width) in v.expected_width.iter().enumerate() {
-                let _ = write!(s, ",{},{},{}", now[t], width, 1.0 - width / now[t]);
+                csv.field(now[t].to_string())?;
+                csv.field(width.to_string())?;
+                csv.field((1.0 - width / now[t]).to_string())?;
             }
-            let _ = writeln!(s, ",{}", v.min_effective_draws);
+            csv.field(v.min_effective_draws.to_string())?;
+            csv.end_record()?;
         }
     }
-    s
+    Ok(csv.finish()?)
 }

@@ -33,6 +33,9 @@ pub enum FitError {
     /// A JSON record of a run folder could not be read or written.
     #[error(transparent)]
     Json(#[from] serde_json::Error),
+    /// A CSV table could not be written.
+    #[error(transparent)]
+    Csv(#[from] csv::Error),
     /// A TOML settings file is not valid TOML.
     #[error(transparent)]
     Toml(#[from] toml::de::Error),

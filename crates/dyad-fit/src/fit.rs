@@ -21,8 +21,8 @@ use dyad_model::likelihood::Model;
 use dyad_model::start::{find_starting_points, StartSettings};
 use dyad_sampler::evidence::{estimate_evidence, EvidenceEstimates};
 use dyad_sampler::{
-    CheckpointConfig, FileSink, LogDensity, MemorySink, RunControl, RunResult, RunStatus,
-    SampleSink, Start,
+    CheckpointConfig, FileSink, LogDensity, MemorySink, RunControl, RunDiagnostics, RunResult,
+    RunStatus, SampleSink, Start,
 };
 
 use crate::density::Posterior;
@@ -31,7 +31,7 @@ use crate::modes::ModeWatch;
 use crate::observer::{CancelFlag, Observer};
 use crate::plan::{checkpoint_every, SamplingPlan};
 use crate::posterior::PosteriorReport;
-use crate::run_folder::{read_window, write_text, ExistingRun, Provenance, RunFiles};
+use crate::run_folder::{read_json, read_window, write_text, ExistingRun, Provenance, RunFiles};
 
 /// Where a fit keeps its draws.
 #[derive(Debug, Clone, PartialEq)]
@@ -368,7 +368,7 @@ pub struct Outcome {
     /// Warnings from the sampler (unconverged chain, stuck walkers, ...).
     pub warnings: Vec<String>,
     /// Cold-chain diagnostics.
-    pub diagnostics: serde_json::Value,
+    pub diagnostics: RunDiagnostics,
     /// Inverse temperatures of the final ladder.
     #[serde(alias = "betas")]
     pub inverse_temperatures: Vec<f64>,
@@ -376,7 +376,7 @@ pub struct Outcome {
     #[serde(alias = "swap_acceptance")]
     pub swap_acceptance_rate: Vec<f64>,
     /// Evidence, when the run was tempered.
-    pub evidence: Option<serde_json::Value>,
+    pub evidence: Option<EvidenceEstimates>,
 }
 
 /// The evidence of a tempered run that was not stopped.
@@ -403,7 +403,6 @@ impl Outcome {
             RunStatus::StepCap => "step cap",
             RunStatus::Cancelled => "stopped by the user",
         };
-        let evidence = evidence.map(serde_json::to_value).transpose()?;
         let mut warnings = result.warnings.clone();
         let worst_rhat = result.diagnostics.split_rhat.iter().fold(1.0f64, |a, &r| {
             if r.is_nan() {
@@ -425,25 +424,23 @@ impl Outcome {
             // The sampler discards exactly the configured share of the steps.
             burn_in: result.burn_in,
             warnings,
-            diagnostics: serde_json::to_value(&result.diagnostics)?,
+            diagnostics: result.diagnostics.clone(),
             inverse_temperatures: result.betas.clone(),
             swap_acceptance_rate: result.swap_acceptance.clone(),
-            evidence,
+            evidence: evidence.copied(),
         })
     }
 
     /// Reads `outcome.json` of a run.
     pub fn read(files: &RunFiles) -> Result<Self> {
         let path = files.outcome();
-        let text = fs::read_to_string(&path).with_context(|| {
+        read_json(&path, "outcome record", || {
             format!(
                 "reading {} (the run has not finished a sampling session yet: `dyad resume {}`)",
                 path.display(),
                 files.folder.display()
             )
-        })?;
-        serde_json::from_str(&text)
-            .with_context(|| format!("{}: not a valid outcome record", path.display()))
+        })
     }
 
     fn write(&self, files: &RunFiles) -> Result<()> {

@@ -22,6 +22,7 @@ use std::path::{Path, PathBuf};
 use crate::error::{bail, Context, Result};
 use serde_json::json;
 
+use dyad_common::csv_table::CsvText;
 use dyad_model::data::Star;
 use dyad_model::likelihood::Model;
 use dyad_orbit::time::TimeScale;
@@ -246,13 +247,20 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
         },
         scale.column_name(),
     );
-    let mut csv = format!("epoch_{},jd,mode,mode_weight", scale.column_name());
-    for q in &quantities {
-        for suffix in ["median", "lo68", "hi68", "lo90", "hi90", "lo95", "hi95"] {
-            csv.push_str(&format!(",{}_{suffix}", q.column()));
-        }
-    }
-    csv.push('\n');
+    let mut csv = CsvText::new();
+    csv.record(
+        [
+            format!("epoch_{}", scale.column_name()),
+            "jd".into(),
+            "mode".into(),
+            "mode_weight".into(),
+        ]
+        .into_iter()
+        .chain(quantities.iter().flat_map(|q| {
+            ["median", "lo68", "hi68", "lo90", "hi90", "lo95", "hi95"]
+                .map(|suffix| format!("{}_{suffix}", q.column()))
+        })),
+    )?;
     let mut json_modes = Vec::new();
     for (m, predictions) in split.modes.iter().zip(&per_mode) {
         text.push_str(&format!(
@@ -270,7 +278,10 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
         let mut json_epochs = Vec::new();
         for ((epoch, t), p) in epochs.iter().zip(&times).zip(predictions) {
             text.push_str(&format!("{epoch:<14}"));
-            csv.push_str(&format!("{epoch:?},{t:?},{},{:?}", m.number, m.weight));
+            csv.field(format!("{epoch:?}"))?;
+            csv.field(format!("{t:?}"))?;
+            csv.field(m.number.to_string())?;
+            csv.field(format!("{:?}", m.weight))?;
             let mut entry = serde_json::Map::new();
             entry.insert("epoch".into(), json!(epoch));
             entry.insert("jd".into(), json!(t));
@@ -281,7 +292,7 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
                     format!("{:.2} [{:.2}, {:.2}]", v[0], v[1], v[2])
                 ));
                 for x in &v {
-                    csv.push_str(&format!(",{x:?}"));
+                    csv.field(format!("{x:?}"))?;
                 }
                 entry.insert(
                     q.column().into(),
@@ -292,7 +303,7 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
                 );
             }
             text.push('\n');
-            csv.push('\n');
+            csv.end_record()?;
             json_epochs.push(serde_json::Value::Object(entry));
         }
         json_modes.push(json!({
@@ -326,7 +337,7 @@ pub fn predict(folder: &Path, options: &PredictOptions) -> Result<Prediction> {
     let written = (|| -> Result<()> {
         fs::create_dir_all(&partial).with_context(|| format!("creating {}", partial.display()))?;
         write_text(&partial.join("predictions.txt"), &text)?;
-        write_text(&partial.join("predictions.csv"), &csv)?;
+        write_text(&partial.join("predictions.csv"), &csv.finish()?)?;
         write_text(
             &partial.join("predictions.json"),
             &(serde_json::to_string_pretty(&document)? + "\n"),

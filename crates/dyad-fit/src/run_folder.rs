@@ -140,13 +140,8 @@ impl ExistingRun {
                 folder.display()
             );
         }
-        let text = fs::read_to_string(files.provenance())
-            .with_context(|| format!("reading {}", files.provenance().display()))?;
-        let provenance: Provenance = serde_json::from_str(&text).with_context(|| {
-            format!(
-                "{}: not a valid provenance record",
-                files.provenance().display()
-            )
+        let provenance: Provenance = read_json(&files.provenance(), "provenance record", || {
+            format!("reading {}", files.provenance().display())
         })?;
         let config_text = fs::read_to_string(files.config_copy())
             .with_context(|| format!("reading {}", files.config_copy().display()))?;
@@ -176,6 +171,17 @@ impl ExistingRun {
         }
         Ok(Self { files, config })
     }
+}
+
+/// Reads a JSON record that dyad wrote; `unreadable` is the message when
+/// the file cannot be read, `what` names the record when it cannot be parsed.
+pub fn read_json<T: serde::de::DeserializeOwned>(
+    path: &Path,
+    what: &str,
+    unreadable: impl FnOnce() -> String,
+) -> Result<T> {
+    let text = fs::read_to_string(path).with_context(unreadable)?;
+    serde_json::from_str(&text).with_context(|| format!("{}: not a valid {what}", path.display()))
 }
 
 /// Writes `text` to `path` atomically (never half-written).

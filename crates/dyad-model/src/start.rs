@@ -243,6 +243,10 @@ fn linear_variants(model: &Model, base: &PhysicalParameters, out: &mut Vec<Vec<f
             .map(|v| v.rv_err_kms)
             .collect();
         errs.sort_by(f64::total_cmp);
+        // The upper median, kept on purpose: it sets the starting points, so
+        // the type-7 median (which averages the middle pair of an even count)
+        // would change every chain of a data set with an even number of
+        // velocities.
         errs.get(errs.len() / 2).copied().unwrap_or(0.1)
     };
     let mut geometries = Vec::new();

@@ -359,7 +359,7 @@ pub fn write_samples_csv(
     }
     let n_params = draws.n_params();
     write_atomically(path, |w| {
-        let mut out = crate::tables::csv_writer(w);
+        let mut out = dyad_common::csv_table::writer(w);
         let csv = |e| ReportError::csv(path, e);
         out.write_record(&names).map_err(csv)?;
         // Debug formatting of f64 is the shortest string that parses back

@@ -77,14 +77,6 @@ pub const RESIDUAL_COLUMNS: [&str; 25] = [
     "chi_square",
 ];
 
-/// A CSV writer for our tables: comma-separated, `\n` line ends, a field
-/// quoted only when it needs it (RFC 4180).
-pub(crate) fn csv_writer(w: &mut dyn std::io::Write) -> csv::Writer<&mut dyn std::io::Write> {
-    csv::WriterBuilder::new()
-        .terminator(csv::Terminator::Any(b'\n'))
-        .from_writer(w)
-}
-
 /// The cells of one residual row: the measured form's five columns
 /// (observed, model, O − C, error, O − C / error) per component, the other
 /// form's columns empty.
@@ -126,7 +118,7 @@ pub fn write_astrometry_residuals_csv(
     rows: &[AstrometryResidualRow],
 ) -> Result<(), ReportError> {
     write_atomically(path, |w| {
-        let mut out = crate::tables::csv_writer(w);
+        let mut out = dyad_common::csv_table::writer(w);
         let csv = |e| ReportError::csv(path, e);
         out.write_record(RESIDUAL_COLUMNS).map_err(csv)?;
         for r in rows {

@@ -60,6 +60,7 @@ mod init;
 mod moves;
 mod rng;
 mod run;
+mod serde_float;
 pub mod storage;
 mod team;
 pub mod tempering;

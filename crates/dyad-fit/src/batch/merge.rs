@@ -171,7 +171,8 @@ fn number(x: f64) -> String {
 
 fn write_csv(path: &Path, rows: &[Vec<String>]) -> Result<()> {
     dyad_report::write_atomically(path, |w| {
-        let mut writer = csv::Writer::from_writer(w);
+        // The dialect of every dyad table (\n line ends, RFC 4180 quoting).
+        let mut writer = dyad_common::csv_table::writer(w);
         for row in rows {
             writer
                 .write_record(row)

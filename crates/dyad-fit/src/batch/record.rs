@@ -8,15 +8,14 @@
 //! table of an interrupted and resumed batch equals that of an
 //! uninterrupted one byte for byte.
 
-use std::fs;
 use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
-use crate::error::{Context, Result};
+use crate::error::Result;
 use crate::fit::Outcome;
 use crate::posterior::PosteriorReport;
-use crate::run_folder::write_text;
+use crate::run_folder::{read_json, write_text};
 
 /// The quantities the merged table gives with their intervals, when the
 /// model has them.
@@ -101,25 +100,20 @@ pub struct SystemRecord {
     pub result: Option<SystemResult>,
 }
 
-/// Largest (`max`) or smallest finite entry of the JSON array at `key`.
-fn fold_finite(diagnostics: &serde_json::Value, keys: &[&str], largest: bool) -> f64 {
-    let values = keys
-        .iter()
-        .filter_map(|k| diagnostics.get(*k).and_then(|v| v.as_array()))
-        .flatten()
-        .filter_map(serde_json::Value::as_f64)
-        .filter(|v| v.is_finite());
+/// Largest (`largest`) or smallest finite value of `values`; NaN if none.
+fn fold_finite<'a>(values: impl Iterator<Item = &'a f64>, largest: bool) -> f64 {
+    let finite = values.copied().filter(|v| v.is_finite());
     if largest {
-        values.fold(f64::NAN, f64::max)
+        finite.fold(f64::NAN, f64::max)
     } else {
-        values.fold(f64::NAN, f64::min)
+        finite.fold(f64::NAN, f64::min)
     }
 }
 
 impl SystemResult {
     /// The results of a finished run from how it ended and its posterior.
     pub fn of_run(outcome: &Outcome, posterior: &PosteriorReport) -> Result<Self> {
-        let diagnostics = serde_json::to_value(&outcome.diagnostics)?;
+        let d = &outcome.diagnostics;
         let quantities = TABLE_QUANTITIES
             .iter()
             .filter_map(|name| posterior.summary.get(name))
@@ -143,16 +137,12 @@ impl SystemResult {
         Ok(Self {
             status: outcome.status.to_string(),
             steps: outcome.steps,
-            largest_split_rhat: fold_finite(&diagnostics, &["split_rhat"], true),
+            largest_split_rhat: fold_finite(d.split_rhat.iter(), true),
             fewest_effective_draws: fold_finite(
-                &diagnostics,
-                &["effective_draws_bulk", "effective_draws_tail"],
+                d.effective_draws_bulk.iter().chain(&d.effective_draws_tail),
                 false,
             ),
-            stuck_walkers: diagnostics
-                .get("stuck_walkers")
-                .and_then(|v| v.as_array())
-                .map_or(0, Vec::len),
+            stuck_walkers: d.stuck_walkers.len(),
             warnings: outcome.warnings.clone(),
             quantities,
             modes,
@@ -171,11 +161,10 @@ impl SystemRecord {
         if !path.exists() {
             return Ok(None);
         }
-        let text =
-            fs::read_to_string(path).with_context(|| format!("reading {}", path.display()))?;
-        let record = serde_json::from_str(&text)
-            .with_context(|| format!("{}: not a valid system record", path.display()))?;
-        Ok(Some(record))
+        read_json(path, "system record", || {
+            format!("reading {}", path.display())
+        })
+        .map(Some)
     }
 
     /// Writes the record atomically.

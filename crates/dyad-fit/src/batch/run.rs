@@ -18,7 +18,7 @@ use crate::batch::shard::Shard;
 use crate::error::{bail, Context, Result};
 use crate::fit::{FitRequest, FitResult, FitRun, Outcome};
 use crate::observer::{CancelFlag, Observer};
-use crate::run_folder::{write_text, RunFiles};
+use crate::run_folder::{read_json, write_text, RunFiles};
 use dyad_sampler::Progress;
 
 /// The files of a batch's output folder.
@@ -73,15 +73,13 @@ impl BatchInputs {
     /// Reads `batch.json` of a batch output folder.
     pub fn read(folder: &BatchFolder) -> Result<Self> {
         let path = folder.inputs();
-        let text = fs::read_to_string(&path).with_context(|| {
+        read_json(&path, "batch record", || {
             format!(
                 "reading {} (is {} the output folder of a `dyad batch`?)",
                 path.display(),
                 folder.root.display()
             )
-        })?;
-        serde_json::from_str(&text)
-            .with_context(|| format!("{}: not a valid batch record", path.display()))
+        })
     }
 
     /// Records the inputs in a new output folder, or checks that an

@@ -35,6 +35,7 @@ use rand::SeedableRng;
 use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 
+use dyad_common::csv_table::CsvText;
 use dyad_common::quantile::median_of_finite as median;
 use dyad_model::likelihood::Model;
 
@@ -156,16 +157,20 @@ pub fn calibrate(
     }
 
     // ranks.csv
-    let mut csv = String::from("system,parameter,rank,draws,truth\n");
+    let mut csv = CsvText::new();
+    csv.record(["system", "parameter", "rank", "draws", "truth"])?;
     for o in &fitted {
         for (j, &(_, label)) in tracked.iter().enumerate() {
-            csv.push_str(&format!(
-                "{},{},{},{},{:e}\n",
-                o.system, label, o.ranks[j], settings.draws, o.truths[j]
-            ));
+            csv.record([
+                o.system.to_string(),
+                label.to_owned(),
+                o.ranks[j].to_string(),
+                settings.draws.to_string(),
+                format!("{:e}", o.truths[j]),
+            ])?;
         }
     }
-    write_text(&settings.output.join("ranks.csv"), &csv)?;
+    write_text(&settings.output.join("ranks.csv"), &csv.finish()?)?;
 
     let mut verdicts = Vec::new();
     let mut plot_inputs = Vec::new();

@@ -13,13 +13,13 @@
 //! Xoshiro256++ seeded from the scenario's `seed`, so a scenario always
 //! produces the same files.
 
-use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
 use rand_xoshiro::Xoshiro256PlusPlus;
 
+use dyad_common::csv_table::CsvText;
 use dyad_orbit::constants::DEG;
 use dyad_orbit::{laws, velocity, CampbellElements, Orbit, TimeScale};
 
@@ -165,28 +165,35 @@ impl Scenario {
         );
         let mut out = Vec::new();
         if let Some(plan) = &self.astrometry {
-            let mut text = header.clone();
+            let mut table = CsvText::with_preamble(&header);
             let tcol = plan.scale.column_name();
-            let source_column = if plan.sources.is_empty() {
-                ""
-            } else {
-                ",source"
-            };
-            match plan.form {
+            let mut columns: Vec<String> = match plan.form {
                 Form::Polar { arcsec, .. } => {
                     let u = if arcsec { "arcsec" } else { "mas" };
-                    let _ = writeln!(
-                        text,
-                        "{tcol},sep_{u},sep_err_{u},pa_deg,pa_err_deg,corr{source_column}"
-                    );
+                    vec![
+                        tcol.into(),
+                        format!("sep_{u}"),
+                        format!("sep_err_{u}"),
+                        "pa_deg".into(),
+                        "pa_err_deg".into(),
+                        "corr".into(),
+                    ]
                 }
-                Form::Cartesian { .. } => {
-                    let _ = writeln!(
-                        text,
-                        "{tcol},dra_mas,ddec_mas,dra_err_mas,ddec_err_mas,corr{source_column}"
-                    );
-                }
+                Form::Cartesian { .. } => [
+                    tcol,
+                    "dra_mas",
+                    "ddec_mas",
+                    "dra_err_mas",
+                    "ddec_err_mas",
+                    "corr",
+                ]
+                .map(String::from)
+                .to_vec(),
+            };
+            if !plan.sources.is_empty() {
+                columns.push("source".into());
             }
+            table.record(&columns).map_err(csv_error)?;
             let c = plan.corr;
             for (n, &t) in plan.epochs.iter().enumerate() {
                 let p = orbit.sky_offset(t);
@@ -194,7 +201,7 @@ impl Scenario {
                 let (z1, z2) = (normal() * noise, normal() * noise);
                 let (mut n1, mut n2) = (z1, c * z1 + (1.0 - c * c).sqrt() * z2);
                 // Mis-quoted errors: the noise is error_factor times the quoted error.
-                let mut source_cell = String::new();
+                let mut source_cell = None;
                 if !plan.sources.is_empty() {
                     let (name, factor) = &plan.sources[n % plan.sources.len()];
                     n1 *= factor;
@@ -202,12 +209,12 @@ impl Scenario {
                     if plan.outliers.contains(&n) {
                         n1 += plan.outlier_sigma * factor;
                     }
-                    source_cell = format!(",{name}");
+                    source_cell = Some(name.as_str());
                 } else if plan.outliers.contains(&n) {
                     n1 += plan.outlier_sigma;
                 }
-                let time = plan.scale.from_jd(t);
-                match plan.form {
+                let time = fmt_time(plan.scale.from_jd(t), plan.scale);
+                let mut row = match plan.form {
                     Form::Polar {
                         sep_err,
                         pa_err_deg,
@@ -217,25 +224,33 @@ impl Scenario {
                         let sep = (p.separation() / unit + sep_err * n1).abs();
                         let pa = (p.position_angle_rad() / DEG + pa_err_deg * n2).rem_euclid(360.0);
                         let pa = if pa >= 360.0 { 0.0 } else { pa };
-                        let (sd, ed) = if arcsec { (7, 7) } else { (4, 4) };
-                        let _ = writeln!(
-                            text,
-                            "{},{sep:.sd$},{sep_err:.ed$},{pa:.5},{pa_err_deg:.5},{c}{source_cell}",
-                            fmt_time(time, plan.scale)
-                        );
+                        let d = if arcsec { 7 } else { 4 };
+                        vec![
+                            time,
+                            format!("{sep:.d$}"),
+                            format!("{sep_err:.d$}"),
+                            format!("{pa:.5}"),
+                            format!("{pa_err_deg:.5}"),
+                            format!("{c}"),
+                        ]
                     }
                     Form::Cartesian { dra_err, ddec_err } => {
                         let dra = p.dra + dra_err * n1;
                         let ddec = p.ddec + ddec_err * n2;
-                        let _ = writeln!(
-                            text,
-                            "{},{dra:.4},{ddec:.4},{dra_err:.4},{ddec_err:.4},{c}{source_cell}",
-                            fmt_time(time, plan.scale)
-                        );
+                        vec![
+                            time,
+                            format!("{dra:.4}"),
+                            format!("{ddec:.4}"),
+                            format!("{dra_err:.4}"),
+                            format!("{ddec_err:.4}"),
+                            format!("{c}"),
+                        ]
                     }
-                }
+                };
+                row.extend(source_cell.map(str::to_owned));
+                table.record(&row).map_err(csv_error)?;
             }
-            out.push((plan.file.clone(), text));
+            out.push((plan.file.clone(), table.finish().map_err(csv_error)?));
         }
         if let Some(plan) = &self.velocities {
             let sys = &self.system;
@@ -250,7 +265,7 @@ impl Scenario {
                 }
             };
             let k = laws::relative_semi_amplitude_kms(a_au, el.period_days, el.e, el.inc_rad);
-            let mut rows: Vec<(f64, String)> = Vec::new();
+            let mut rows: Vec<(f64, [String; 5])> = Vec::new();
             for inst in &plan.instruments {
                 for &t in &inst.epochs {
                     let v_rel = k * orbit.rv_shape(t);
@@ -268,39 +283,48 @@ impl Scenario {
                         };
                         rows.push((
                             t,
-                            format!(
-                                "{},{v:.4},{:.4},{star_name},{}",
+                            [
                                 fmt_time(plan.scale.from_jd(t), plan.scale),
-                                inst.error_kms,
-                                inst.name
-                            ),
+                                format!("{v:.4}"),
+                                format!("{:.4}", inst.error_kms),
+                                star_name.to_owned(),
+                                inst.name.clone(),
+                            ],
                         ));
                     }
                 }
             }
             // Chronological order, stable for equal times.
             rows.sort_by(|a, b| a.0.total_cmp(&b.0));
-            let mut text = String::new();
             let existing = out.iter().position(|(f, _)| *f == plan.file);
             if existing.is_some() {
                 return Err(ModelError::InvalidModel(
                     "astrometry and velocities must go to different files".into(),
                 ));
             }
-            text.push_str(&header);
-            let _ = writeln!(
-                text,
-                "{},rv_kms,rv_err_kms,star,instrument",
-                plan.scale.column_name()
-            );
-            for (_, row) in rows {
-                text.push_str(&row);
-                text.push('\n');
+            let mut table = CsvText::with_preamble(&header);
+            table
+                .record([
+                    plan.scale.column_name(),
+                    "rv_kms",
+                    "rv_err_kms",
+                    "star",
+                    "instrument",
+                ])
+                .map_err(csv_error)?;
+            for (_, row) in &rows {
+                table.record(row).map_err(csv_error)?;
             }
-            out.push((plan.file.clone(), text));
+            out.push((plan.file.clone(), table.finish().map_err(csv_error)?));
         }
         Ok(out)
     }
+}
+
+/// A table assembled in memory cannot fail but for records of unequal
+/// length, a defect of this file.
+fn csv_error(e: csv::Error) -> ModelError {
+    ModelError::InvalidModel(format!("assembling a simulated table: {e}"))
 }
 
 fn fmt_time(value: f64, scale: TimeScale) -> String {

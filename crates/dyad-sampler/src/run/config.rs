@@ -74,10 +74,13 @@ pub struct ConvergenceCheck {
     /// Steps of history the check used (after its burn-in).
     pub span: u64,
     /// Smallest bulk effective-draw count of any parameter.
+    #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub fewest_bulk: f64,
     /// Smallest tail effective-draw count of any parameter.
+    #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub fewest_tail: f64,
     /// Largest split R-hat of any parameter.
+    #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub largest_rhat: f64,
     /// The same of the watched quantities, when something was watched
     /// (absent from checkpoints written before quantities could be watched).

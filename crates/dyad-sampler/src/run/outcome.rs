@@ -6,7 +6,7 @@ use std::sync::atomic::AtomicBool;
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::config::{Convergence, ConvergenceCheck, RunConfig};
 use super::state::State;
@@ -66,11 +66,12 @@ pub enum RunStatus {
 }
 
 /// A walker whose behaviour suggests it is stuck.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct StuckWalker {
     /// Walker index (cold ensemble).
     pub walker: usize,
     /// Its acceptance fraction.
+    #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub acceptance: f64,
     /// Steps since it last moved.
     pub steps_since_move: u64,
@@ -78,24 +79,31 @@ pub struct StuckWalker {
     pub reason: String,
 }
 
-/// Diagnostics of the cold chain after burn-in.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+/// Diagnostics of the cold chain after burn-in (serialised in a run's
+/// `outcome.json`; NaN is written as `null` and read back as NaN).
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct RunDiagnostics {
     /// Acceptance fraction of every cold walker over the whole run.
+    #[serde(deserialize_with = "crate::serde_float::nans_if_null")]
     pub acceptance: Vec<f64>,
     /// Mean of `acceptance`.
+    #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub mean_acceptance: f64,
     /// Walkers flagged as stuck.
     pub stuck_walkers: Vec<StuckWalker>,
     /// Integrated autocorrelation time per parameter (steps), after burn-in.
+    #[serde(deserialize_with = "crate::serde_float::nans_if_null")]
     pub tau: Vec<f64>,
     /// Rank-normalised split R-hat per parameter (walkers as chains).
+    #[serde(deserialize_with = "crate::serde_float::nans_if_null")]
     pub split_rhat: Vec<f64>,
     /// Bulk effective draws (effective sample size) per parameter, of the
     /// kept (progressively thinned) history after burn-in: a slight
     /// underestimate for the full chain when the history is thinned.
+    #[serde(deserialize_with = "crate::serde_float::nans_if_null")]
     pub effective_draws_bulk: Vec<f64>,
     /// Tail effective draws per parameter.
+    #[serde(deserialize_with = "crate::serde_float::nans_if_null")]
     pub effective_draws_tail: Vec<f64>,
     /// Steps between the history snapshots these were computed from.
     pub history_thin: u64,
@@ -106,7 +114,7 @@ pub struct RunDiagnostics {
     pub last_check: Option<ConvergenceCheck>,
     /// Diagnostics of the watched quantities after burn-in (none watched:
     /// empty, and left out of the serialised form).
-    #[serde(skip_serializing_if = "Vec::is_empty")]
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub watched: Vec<WatchedDiagnostics>,
 }
 
@@ -226,9 +234,11 @@ pub(super) fn finish(
         .filter(|t| t.is_finite())
         .fold(0.0, f64::max);
 
+    // Type-7 median (Hyndman & Fan 1996): the threshold of a warning only,
+    // so the draws do not depend on it.
     let mut sorted = acceptance.clone();
     sorted.sort_by(f64::total_cmp);
-    let median = sorted[sorted.len() / 2];
+    let median = dyad_common::quantile::quantile_sorted(&sorted, 0.5);
     let stuck_run = config.stuck_steps.max((20.0 * tau_max).ceil() as u64);
     let mut stuck_walkers = Vec::new();
     for (w, walker) in cold.walkers.iter().enumerate() {

@@ -89,16 +89,20 @@ pub struct WatchedCheck {
     /// Quantities watched.
     pub count: usize,
     /// Largest Monte Carlo standard error of a quantity's mean.
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub largest_error: f64,
     /// Whether every quantity's ensemble-mean series is long enough (more
     /// than 50 of its autocorrelation times) for its error to be believed.
     pub long_enough: bool,
     /// Largest autocorrelation time of an ensemble-mean series, steps.
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub largest_tau: f64,
     /// Largest split R-hat of a quantity (walkers as chains).
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub largest_rhat: f64,
     /// Largest |z| of a quantity's drift test.
     #[serde(default)]
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub largest_drift_z: f64,
 }
 
@@ -114,16 +118,19 @@ pub struct WatchedCheck {
 /// diagnostics then look excellent while the share is still far off
 /// (measured on the sparse demo: 2 690 per-walker effective draws and split
 /// R-hat 1.014 for a mode share of 0.099 whose long-run value is 0.040).
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct WatchedDiagnostics {
     /// The quantity's name, as the watch gave it.
     pub name: String,
     /// Mean over the kept draws (for a 0/1 indicator: the share of draws).
+    #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub mean: f64,
     /// Monte Carlo standard error of the mean from the ensemble-mean series
     /// (infinite when that series never changes or is too short).
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub standard_error: f64,
     /// Integrated autocorrelation time of the ensemble-mean series, steps.
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub ensemble_tau: f64,
     /// Whether the series is more than 50 `ensemble_tau` long (and Sokal's
     /// window was found), i.e. whether `standard_error` can be believed.
@@ -136,11 +143,14 @@ pub struct WatchedDiagnostics {
     /// time). A share still relaxing after the ladder's freeze drifts more
     /// slowly than the autocorrelation of a short span shows; this is what
     /// sees it.
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub drift_z: f64,
     /// Bulk effective draws, walker by walker (for comparison; the rule
     /// does not use them).
+    #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub effective_draws_bulk: f64,
     /// Rank-normalised split R-hat (walkers as chains).
+    #[serde(deserialize_with = "crate::serde_float::infinity_if_null")]
     pub split_rhat: f64,
 }
 

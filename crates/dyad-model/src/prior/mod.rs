@@ -23,7 +23,8 @@
 //! `shape` key: `{ shape = "log_uniform", min = 1.0, max = 1e6 }`. See
 //! [`Prior::from_toml`]. The serialised (JSON) form is the same table.
 
-use std::path::Path;
+mod beta_function;
+mod toml_form;
 
 // The standard normal distribution, accurate in both tails.
 use dyad_common::normal::{
@@ -32,9 +33,11 @@ use dyad_common::normal::{
 };
 use rand::Rng;
 use rand_distr::{Distribution, StandardNormal};
-use statrs::function::beta::{checked_beta_reg, inv_beta_reg, ln_beta};
+use statrs::function::beta::ln_beta;
 
 use crate::error::ModelError;
+
+use beta_function::{beta_quantile, incomplete_beta};
 
 /// Smallest probability a truncated normal may keep of its parent normal.
 ///
@@ -497,208 +500,4 @@ impl Prior {
             PriorShape::Fixed { value } => format!("fixed at {}", n(value)),
         }
     }
-
-    /// Parses the TOML form, naming the file and dotted key in errors.
-    ///
-    /// Accepted: a bare number (a fixed value), or a table whose `shape` is one of
-    /// `uniform {min, max}`, `log_uniform {min, max}`, `normal {mean, sd}`,
-    /// `truncated_normal {mean, sd, min, max}`, `log_normal {mu, sigma}` (of ln x),
-    /// `beta {alpha, beta}`, `fixed {value}`. Unknown shapes, unknown or missing
-    /// fields and non-numeric values are errors at `key.field`.
-    pub fn from_toml(value: &toml::Value, file: &Path, key: &str) -> Result<Prior, ModelError> {
-        let at = |sub: Option<&str>, message: String| {
-            let dotted = match sub {
-                Some(field) => format!("{key}.{field}"),
-                None => key.to_owned(),
-            };
-            ModelError::at(file, None, Some(&dotted), message)
-        };
-        let located = |result: Result<Prior, ModelError>| {
-            result.map_err(|error| match error {
-                ModelError::InvalidPrior(message) => at(None, message),
-                other => other,
-            })
-        };
-        let table = match value {
-            toml::Value::Integer(i) => return located(Prior::fixed(*i as f64)),
-            toml::Value::Float(f) => return located(Prior::fixed(*f)),
-            toml::Value::Table(table) => table,
-            other => {
-                return Err(at(
-                    None,
-                    format!(
-                        "a prior is a number (a fixed value) or a table such as \
-                         {{ shape = \"uniform\", min = 0.0, max = 1.0 }}; found a {}",
-                        other.type_str()
-                    ),
-                ))
-            }
-        };
-        const SHAPES: &str =
-            "uniform, log_uniform, normal, truncated_normal, log_normal, beta, fixed";
-        let shape_name = match table.get("shape") {
-            Some(toml::Value::String(s)) => s.as_str(),
-            Some(other) => {
-                return Err(at(
-                    Some("shape"),
-                    format!(
-                        "shape must be a string (one of {SHAPES}), found a {}",
-                        other.type_str()
-                    ),
-                ))
-            }
-            None => {
-                return Err(at(
-                    Some("shape"),
-                    format!("missing 'shape'; give one of {SHAPES}"),
-                ))
-            }
-        };
-        let fields: &[&str] = match shape_name {
-            "uniform" | "log_uniform" => &["min", "max"],
-            "normal" => &["mean", "sd"],
-            "truncated_normal" => &["mean", "sd", "min", "max"],
-            "log_normal" => &["mu", "sigma"],
-            "beta" => &["alpha", "beta"],
-            "fixed" => &["value"],
-            other => {
-                return Err(at(
-                    Some("shape"),
-                    format!("unknown shape '{other}'; accepted: {SHAPES}"),
-                ))
-            }
-        };
-        // Reject typos before looking for the fields, so `sdev` is reported as unknown.
-        for name in table.keys() {
-            if name != "shape" && !fields.contains(&name.as_str()) {
-                return Err(at(
-                    Some(name),
-                    format!(
-                        "unknown field '{name}' for a {shape_name} prior; expected {}",
-                        fields.join(", ")
-                    ),
-                ));
-            }
-        }
-        let mut numbers = [0.0_f64; 4];
-        for (slot, name) in numbers.iter_mut().zip(fields) {
-            *slot = match table.get(*name) {
-                Some(toml::Value::Float(f)) => *f,
-                Some(toml::Value::Integer(i)) => *i as f64,
-                Some(other) => {
-                    return Err(at(
-                        Some(name),
-                        format!("'{name}' must be a number, found a {}", other.type_str()),
-                    ))
-                }
-                None => {
-                    return Err(at(
-                        Some(name),
-                        format!(
-                            "missing '{name}'; a {shape_name} prior needs {}",
-                            fields.join(", ")
-                        ),
-                    ))
-                }
-            };
-        }
-        let [a, b, c, d] = numbers;
-        located(match shape_name {
-            "uniform" => Prior::uniform(a, b),
-            "log_uniform" => Prior::log_uniform(a, b),
-            "normal" => Prior::normal(a, b),
-            "truncated_normal" => Prior::truncated_normal(a, b, c, d),
-            "log_normal" => Prior::log_normal(a, b),
-            "beta" => Prior::beta(a, b),
-            _ => Prior::fixed(a),
-        })
-    }
-}
-
-/// Regularised incomplete beta function I_x(alpha, beta).
-///
-/// statrs `beta_reg` (a continued fraction) treats x within 2.2e-16 of 0 or 1
-/// as exactly 0 or 1; there the power series
-/// I_x(a, b) = x^a / B(a, b) * sum_n (1-b)_n / n! * x^n / (a + n)
-/// (Abramowitz & Stegun, Handbook of Mathematical Functions, 1964, eq. 26.5.4;
-/// from memory) is used instead, and its reflection near 1.
-fn incomplete_beta(alpha: f64, beta: f64, x: f64) -> f64 {
-    const SERIES_BELOW: f64 = 1e-8;
-    if x <= 0.0 {
-        0.0
-    } else if x >= 1.0 {
-        1.0
-    } else if x < SERIES_BELOW {
-        incomplete_beta_series(alpha, beta, x)
-    } else if 1.0 - x < SERIES_BELOW {
-        1.0 - incomplete_beta_series(beta, alpha, 1.0 - x)
-    } else {
-        checked_beta_reg(alpha, beta, x).unwrap_or(f64::NAN)
-    }
-}
-
-fn incomplete_beta_series(alpha: f64, beta: f64, x: f64) -> f64 {
-    let mut coefficient = 1.0;
-    let mut sum = 1.0 / alpha;
-    for n in 1..50 {
-        let n = f64::from(n);
-        coefficient *= (n - beta) * x / n;
-        let term = coefficient / (alpha + n);
-        sum += term;
-        if term.abs() <= 1e-17 * sum.abs() {
-            break;
-        }
-    }
-    (alpha * x.ln() - ln_beta(alpha, beta)).exp() * sum
-}
-
-/// Quantile of Beta(alpha, beta) for 0 < p < 1.
-///
-/// Starts from the AS 109 inverse (statrs `inv_beta_reg`) and refines it by
-/// Newton's method in ln x on I_x(alpha, beta) = p, kept inside a bracket
-/// (bisecting geometrically when a step leaves it), which stays accurate for
-/// p far in the lower tail where the density may diverge. Upper-half
-/// probabilities use the reflection I_x(a, b) = 1 - I_{1-x}(b, a).
-fn beta_quantile(alpha: f64, beta: f64, p: f64) -> f64 {
-    if p > 0.5 {
-        return 1.0 - beta_quantile_lower(beta, alpha, 1.0 - p);
-    }
-    beta_quantile_lower(alpha, beta, p)
-}
-
-fn beta_quantile_lower(alpha: f64, beta: f64, p: f64) -> f64 {
-    let ln_b = ln_beta(alpha, beta);
-    let (mut lo, mut hi) = (0.0_f64, 1.0_f64);
-    let start = inv_beta_reg(alpha, beta, p);
-    let mut x = if start > 0.0 && start < 1.0 {
-        start
-    } else {
-        0.5
-    };
-    for _ in 0..200 {
-        let residual = incomplete_beta(alpha, beta, x) - p;
-        if residual == 0.0 {
-            return x;
-        }
-        if residual > 0.0 {
-            hi = x;
-        } else {
-            lo = x;
-        }
-        // d I_x / d ln x = x * density(x).
-        let slope = (alpha * x.ln() + (beta - 1.0) * (-x).ln_1p() - ln_b).exp();
-        let mut next = x * (-residual / slope).exp();
-        if !(next > lo && next < hi && next.is_finite()) {
-            next = if lo > 0.0 {
-                (lo * hi).sqrt()
-            } else {
-                hi * 1e-3
-            };
-        }
-        if (next - x).abs() <= 4.0 * f64::EPSILON * x {
-            return next;
-        }
-        x = next;
-    }
-    x
 }
