@@ -83,6 +83,18 @@ impl DiagnosticsWorkspace {
         self.autocorr.estimate(draws, n_steps, n_walkers)
     }
 
+    /// Checks and loads the step-major draws of one parameter.
+    fn load_one(
+        &mut self,
+        draws: &[f64],
+        n_steps: usize,
+        n_walkers: usize,
+    ) -> Result<(), DiagnosticsError> {
+        check_shape(draws, n_steps, n_walkers, 1, MIN_STEPS_RANK)?;
+        self.load(draws, n_steps, n_walkers, 1, 0);
+        Ok(())
+    }
+
     /// Rank-normalised split R-hat of one parameter (step-major draws).
     pub fn split_rhat(
         &mut self,
@@ -90,8 +102,7 @@ impl DiagnosticsWorkspace {
         n_steps: usize,
         n_walkers: usize,
     ) -> Result<f64, DiagnosticsError> {
-        check_shape(draws, n_steps, n_walkers, 1, MIN_STEPS_RANK)?;
-        self.load(draws, n_steps, n_walkers, 1, 0);
+        self.load_one(draws, n_steps, n_walkers)?;
         Ok(self.rhat_loaded(n_steps, n_walkers))
     }
 
@@ -102,8 +113,7 @@ impl DiagnosticsWorkspace {
         n_steps: usize,
         n_walkers: usize,
     ) -> Result<f64, DiagnosticsError> {
-        check_shape(draws, n_steps, n_walkers, 1, MIN_STEPS_RANK)?;
-        self.load(draws, n_steps, n_walkers, 1, 0);
+        self.load_one(draws, n_steps, n_walkers)?;
         Ok(self.ess_bulk_loaded(n_steps, n_walkers))
     }
 
@@ -114,8 +124,7 @@ impl DiagnosticsWorkspace {
         n_steps: usize,
         n_walkers: usize,
     ) -> Result<f64, DiagnosticsError> {
-        check_shape(draws, n_steps, n_walkers, 1, MIN_STEPS_RANK)?;
-        self.load(draws, n_steps, n_walkers, 1, 0);
+        self.load_one(draws, n_steps, n_walkers)?;
         Ok(self.ess_tail_loaded(n_steps, n_walkers))
     }
 
@@ -131,8 +140,7 @@ impl DiagnosticsWorkspace {
         n_steps: usize,
         n_walkers: usize,
     ) -> Result<f64, DiagnosticsError> {
-        check_shape(draws, n_steps, n_walkers, 1, MIN_STEPS_RANK)?;
-        self.load(draws, n_steps, n_walkers, 1, 0);
+        self.load_one(draws, n_steps, n_walkers)?;
         Ok(ess_basic(
             &mut self.autocorr,
             &self.split,
