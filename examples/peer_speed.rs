@@ -577,6 +577,7 @@ fn sample(
         let control = RunControl {
             progress: Some(&mut on_progress),
             cancel: None,
+            watch: None,
         };
         run(&density, &config, &start, &mut sink, control)
     };

@@ -106,6 +106,21 @@ fn describe(p: &Progress) -> String {
                 "walkers agree to R-hat {:.3} (want <= {})",
                 check.largest_rhat, rule.max_split_rhat
             ));
+            if let Some(w) = check.watched {
+                parts.push(if check.watched_met(rule) {
+                    format!("mode weights settled (+- {:.3})", w.largest_error)
+                } else if !w.long_enough {
+                    format!(
+                        "mode weights still settling (they wander over ~{:.0} steps)",
+                        w.largest_tau
+                    )
+                } else {
+                    format!(
+                        "mode weights known to +- {:.3} (want <= {})",
+                        w.largest_error, rule.max_watched_error
+                    )
+                });
+            }
         }
         (Some(_), None) => parts.push("counting effective draws".to_owned()),
         (None, _) => {}

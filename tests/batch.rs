@@ -75,7 +75,7 @@ fn true_value(scenario: &Path, key: &str) -> f64 {
 fn base_in(dir: &Path) -> PathBuf {
     let text = fs::read_to_string(Path::new(SURVEY).join("base.toml"))
         .unwrap()
-        .replace("max_steps = 8000", "max_steps = 2500");
+        .replace("max_steps = 30000", "max_steps = 2500");
     let base = dir.join("base.toml");
     fs::write(&base, text).unwrap();
     base

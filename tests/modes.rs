@@ -40,7 +40,7 @@ fn modes_are_labelled_summarised_plotted_and_predicted_separately() {
     let text = fs::read_to_string(root.join("configs/sparse.toml"))
         .unwrap()
         .replace("../demo-data/", &format!("{}/demo-data/", root.display()))
-        .replace("max_steps = 8000", "max_steps = 2000");
+        .replace("max_steps = 30000", "max_steps = 2000");
     let config = dir.path().join("sparse.toml");
     fs::write(&config, text).unwrap();
     let run = dir.path().join("run");

@@ -23,6 +23,11 @@ impl<'a> Posterior<'a> {
         }
     }
 
+    /// The model whose posterior this is.
+    pub fn model(&self) -> &'a Model {
+        self.model
+    }
+
     /// The posterior restricted to periods in `[lo_days, hi_days]`; `None` if
     /// the model samples no period (it always does) or the window is empty.
     pub fn in_period_window(model: &'a Model, lo_days: f64, hi_days: f64) -> Option<Self> {

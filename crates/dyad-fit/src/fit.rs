@@ -27,6 +27,7 @@ use dyad_sampler::{
 
 use crate::density::Posterior;
 use crate::error::{bail, Context, Result};
+use crate::modes::ModeWatch;
 use crate::observer::{CancelFlag, Observer};
 use crate::plan::{checkpoint_every, SamplingPlan};
 use crate::posterior::PosteriorReport;
@@ -511,7 +512,7 @@ fn ball_scale(model: &Model, x: &[f64]) -> Vec<f64> {
 /// Runs (or, without `start`, resumes) the sampler, passing its progress
 /// reports to `observer`.
 fn run_sampler(
-    density: &dyn LogDensity,
+    density: &Posterior<'_>,
     plan: &SamplingPlan,
     sink: &mut dyn SampleSink,
     start: Option<&Start<'_>>,
@@ -521,9 +522,11 @@ fn run_sampler(
     observer.sampling_started(plan.sampler.max_steps);
     let result = {
         let mut on_progress = |p: &dyad_sampler::Progress| observer.sampling_progress(p);
+        let mut modes = ModeWatch::new(density.model());
         let control = RunControl {
             progress: Some(&mut on_progress),
             cancel: Some(cancel.shared()),
+            watch: Some(&mut modes),
         };
         match start {
             Some(start) => dyad_sampler::run(density, &plan.sampler, start, sink, control),

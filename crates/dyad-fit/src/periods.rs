@@ -502,7 +502,7 @@ mod tests {
                 "jitter_kms = { shape = \"log_uniform\", min = 0.001, max = 10.0 }",
             )
             .replace("walkers = 48", "walkers = 28")
-            .replace("max_steps = 8000", "max_steps = 120")
+            .replace("max_steps = 30000", "max_steps = 120")
             .replace("thinning = 2", "thinning = 1")
             .replace("seed = 5", &format!("seed = {seed}"))
             .replace(

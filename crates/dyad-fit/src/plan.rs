@@ -110,6 +110,7 @@ impl SamplingPlan {
         sampler.convergence = Some(Convergence {
             min_effective_draws: s.effective_draws,
             max_split_rhat: s.max_split_rhat,
+            max_watched_error: s.mode_weight_error,
             ..Convergence::default()
         });
         if n_temps > 1 {

@@ -108,6 +108,7 @@ fn settings() -> RunConfig {
             seed: 3,
             effective_draws: 400.0,
             max_split_rhat: 1.03,
+            mode_weight_error: 0.01,
             tempering: Tempering::Off,
             period_windows_days: Vec::new(),
         },

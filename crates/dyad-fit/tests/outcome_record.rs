@@ -5,7 +5,9 @@
 
 use dyad_fit::fit::Outcome;
 use dyad_sampler::evidence::{EvidenceEstimate, EvidenceEstimates, EvidenceMethod};
-use dyad_sampler::{ConvergenceCheck, RunDiagnostics, StuckWalker};
+use dyad_sampler::{
+    ConvergenceCheck, RunDiagnostics, StuckWalker, WatchedCheck, WatchedDiagnostics,
+};
 
 fn estimate(ln_z: f64, method: EvidenceMethod, discretisation: Option<f64>) -> EvidenceEstimate {
     EvidenceEstimate {
@@ -46,7 +48,26 @@ fn outcome() -> Outcome {
                 fewest_bulk: 812.0,
                 fewest_tail: 640.0,
                 largest_rhat: 1.002,
+                watched: Some(WatchedCheck {
+                    count: 2,
+                    largest_error: f64::INFINITY,
+                    long_enough: false,
+                    largest_tau: f64::INFINITY,
+                    largest_rhat: 1.01,
+                    largest_drift_z: 0.7,
+                }),
             }),
+            // A mode share whose error is not known yet (series too short).
+            watched: vec![WatchedDiagnostics {
+                name: "period mode 2".into(),
+                mean: 0.04,
+                standard_error: f64::INFINITY,
+                ensemble_tau: f64::INFINITY,
+                long_enough: false,
+                drift_z: f64::INFINITY,
+                effective_draws_bulk: 950.0,
+                split_rhat: 1.01,
+            }],
         },
         inverse_temperatures: vec![1.0, 0.3, 0.0],
         swap_acceptance_rate: vec![0.4, 0.2],
@@ -72,6 +93,9 @@ fn outcome_reads_back_typed_with_nan_where_json_has_null() {
     assert!(d.effective_draws_bulk[1].is_nan() && d.effective_draws_tail[1].is_nan());
     assert_eq!(d.stuck_walkers, e.stuck_walkers);
     assert_eq!(d.last_check, e.last_check);
+    // An unknown (infinite) error is written as null and read back as
+    // infinite, so that a resumed rule still counts it as not met.
+    assert_eq!(d.watched, e.watched);
     assert_eq!(d.acceptance, e.acceptance);
     assert_eq!(back.evidence, written.evidence);
     assert_eq!(back.inverse_temperatures, written.inverse_temperatures);
@@ -110,7 +134,9 @@ fn outcome_keeps_the_keys_of_the_run_folder() {
             "mean_acceptance",
             "split_rhat",
             "stuck_walkers",
-            "tau"
+            "tau",
+            // Written only when something was watched (period modes).
+            "watched"
         ]
     );
     assert_eq!(

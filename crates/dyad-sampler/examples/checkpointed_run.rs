@@ -86,6 +86,7 @@ fn go(folder: PathBuf, total: u64, resuming: bool) -> Result<(), dyad_sampler::S
     let control = RunControl {
         progress: Some(&mut on_progress),
         cancel: Some(cancel),
+        watch: None,
     };
     let result = if resuming {
         let mut sink = FileSink::open(&samples_path)?;

@@ -19,7 +19,9 @@
 //!   checked by [`check_initial_ensemble`].
 //! - [`RunConfig`], [`run`] and [`resume`]: the run loop, with the
 //!   stopping rule on effective draws and split R-hat ([`Convergence`],
-//!   [`ConvergenceCheck`]), [`Progress`] reports, a
+//!   [`ConvergenceCheck`]; quantities the caller derives from the draws, such
+//!   as the share of draws in each mode, are judged beside the parameters
+//!   through a [`Watch`]), [`Progress`] reports, a
 //!   cancel flag ([`RunControl`]), periodic atomic checkpoints
 //!   ([`CheckpointConfig`]) and a [`RunResult`] with [`RunDiagnostics`].
 //! - [`SampleSink`]: where thinned samples go, in memory ([`MemorySink`]) or
@@ -72,8 +74,9 @@ pub use moves::{
 };
 pub use rng::StreamRng;
 pub use run::{
-    checkpoint_step, resume, run, CheckpointConfig, Convergence, ConvergenceCheck, Progress,
-    RunConfig, RunControl, RunDiagnostics, RunResult, RunStatus, StuckWalker,
+    checkpoint_step, resume, run, CheckpointConfig, Convergence, ConvergenceCheck, KeptDraws,
+    Progress, RunConfig, RunControl, RunDiagnostics, RunResult, RunStatus, StuckWalker, Watch,
+    WatchedCheck, WatchedDiagnostics, WatchedSeries,
 };
 pub use storage::{
     for_each_record, read_record_file, FileSink, MemorySink, RecordKind, RecordTable, SampleSink,

@@ -10,6 +10,13 @@ pub(crate) fn nan_if_null<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Err
     Ok(Option::<f64>::deserialize(d)?.unwrap_or(f64::NAN))
 }
 
+/// A number, or +infinity for `null`: for a field whose only non-finite
+/// value is "unknown, so infinitely uncertain" (a watched quantity's
+/// standard error, autocorrelation time, drift statistic or R-hat).
+pub(crate) fn infinity_if_null<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+    Ok(Option::<f64>::deserialize(d)?.unwrap_or(f64::INFINITY))
+}
+
 /// Numbers, each NaN where it is `null`.
 pub(crate) fn nans_if_null<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
     Ok(Vec::<Option<f64>>::deserialize(d)?

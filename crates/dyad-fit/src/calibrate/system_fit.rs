@@ -95,7 +95,10 @@ pub(super) fn calibrate_system(
         &plan.sampler,
         &start,
         &mut sink,
-        RunControl::default(),
+        RunControl {
+            watch: Some(&mut crate::modes::ModeWatch::new(&model)),
+            ..RunControl::default()
+        },
     )?;
     let status = match result.status {
         RunStatus::Converged => "converged",

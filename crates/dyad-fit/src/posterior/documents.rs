@@ -174,6 +174,7 @@ pub(super) fn diagnostics_document(
         "acceptance_per_walker": d.acceptance,
         "stuck_walkers": d.stuck_walkers,
         "stopping_rule_last_check": d.last_check,
+        "period_mode_shares": d.watched,
         "parameters": per_parameter,
         "warnings": outcome.warnings,
         "inverse_temperatures": outcome.inverse_temperatures,

@@ -618,6 +618,14 @@ fn read_sampler(t: &Table<'_>, raw: &RawSampler) -> Result<SamplerSettings, Mode
             format!("must be a number above 1 (e.g. 1.01 to 1.1), got {max_split_rhat}"),
         ));
     }
+    let mode_weight_error = number(&raw.mode_weight_error).unwrap_or(d.mode_weight_error);
+    if !(mode_weight_error > 0.0 && mode_weight_error < 0.5) {
+        return Err(t.error(
+            "mode_weight_error",
+            &raw.mode_weight_error,
+            format!("must be a number between 0 and 0.5 (e.g. 0.01), got {mode_weight_error}"),
+        ));
+    }
     let tempering = match raw.temperatures.as_ref().map(Spanned::get_ref) {
         None => Tempering::Off,
         Some(toml::Value::String(v)) if v == "off" => Tempering::Off,
@@ -654,6 +662,7 @@ fn read_sampler(t: &Table<'_>, raw: &RawSampler) -> Result<SamplerSettings, Mode
         seed: value(&raw.seed).map_or(d.seed, |v| v.0),
         effective_draws,
         max_split_rhat,
+        mode_weight_error,
         tempering,
         period_windows_days,
     })

@@ -167,6 +167,10 @@ pub struct SamplerSettings {
     /// ... `max_split_rhat`: and a rank-normalised split R-hat of at most
     /// this (default 1.03).
     pub max_split_rhat: f64,
+    /// `mode_weight_error`: when the posterior has separate period modes,
+    /// stop only once every mode's weight is known to this Monte Carlo
+    /// standard error or better (default 0.01).
+    pub mode_weight_error: f64,
     /// `temperatures`: "off" (default), "auto", or a number.
     pub tempering: Tempering,
     /// `period_windows_days` or `period_windows_years`: period ranges
@@ -183,6 +187,7 @@ impl Default for SamplerSettings {
             burn_in_fraction: 0.5,
             effective_draws: 1000.0,
             max_split_rhat: 1.03,
+            mode_weight_error: 0.01,
             seed: 1,
             tempering: Tempering::Off,
             period_windows_days: Vec::new(),

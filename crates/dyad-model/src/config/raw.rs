@@ -120,6 +120,7 @@ pub(super) struct RawSampler {
     pub(super) burn_in_fraction: Field<Number>,
     pub(super) effective_draws: Field<Number>,
     pub(super) max_split_rhat: Field<Number>,
+    pub(super) mode_weight_error: Field<Number>,
     pub(super) seed: Field<Whole<0>>,
     /// `"off"`, `"auto"` or a count: checked by hand for one clear message.
     pub(super) temperatures: Field<toml::Value>,

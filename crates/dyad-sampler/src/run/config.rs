@@ -7,14 +7,22 @@ use std::time::Duration;
 
 use serde::{Deserialize, Serialize};
 
-use crate::diagnostics::DiagnosticsWorkspace;
+use crate::diagnostics::{DiagnosticsWorkspace, MIN_STEPS_PER_TAU};
 use crate::error::SamplerError;
 use crate::init::check_walker_count;
 use crate::moves::MoveMixture;
 use crate::tempering::TemperingConfig;
 
+use super::watch::WatchedCheck;
+
 /// The stopping rule: enough effective draws of every parameter, and walkers
 /// that agree.
+///
+/// Quantities a caller watches ([`crate::Watch`]: e.g. the share of draws in
+/// each period mode) must have means known to `max_watched_error` (Monte
+/// Carlo standard error from the ensemble-mean series, which must be more
+/// than 50 of its autocorrelation times long) and a split R-hat within
+/// `max_split_rhat`.
 ///
 /// At each check the second half of the cold-chain history (the first half
 /// is burn-in) must give every sampled parameter at least
@@ -33,6 +41,10 @@ pub struct Convergence {
     pub min_effective_draws: f64,
     /// Largest rank-normalised split R-hat of any parameter.
     pub max_split_rhat: f64,
+    /// Largest Monte Carlo standard error of the mean of a watched quantity
+    /// (for a mode's share of the draws: of its weight).
+    #[serde(default = "default_watched_error")]
+    pub max_watched_error: f64,
     /// Fewest steps between checks; checks are also at least 10 per cent of
     /// the run apart, so their cost stays a small fraction of the run.
     pub min_check_interval: u64,
@@ -43,9 +55,14 @@ impl Default for Convergence {
         Self {
             min_effective_draws: 1000.0,
             max_split_rhat: 1.03,
+            max_watched_error: default_watched_error(),
             min_check_interval: 100,
         }
     }
+}
+
+fn default_watched_error() -> f64 {
+    0.01
 }
 
 /// What the last check of the stopping rule found (the worst parameter for
@@ -65,6 +82,10 @@ pub struct ConvergenceCheck {
     /// Largest split R-hat of any parameter.
     #[serde(deserialize_with = "crate::serde_float::nan_if_null")]
     pub largest_rhat: f64,
+    /// The same of the watched quantities, when something was watched
+    /// (absent from checkpoints written before quantities could be watched).
+    #[serde(default)]
+    pub watched: Option<WatchedCheck>,
 }
 
 impl ConvergenceCheck {
@@ -84,6 +105,7 @@ impl ConvergenceCheck {
             fewest_bulk: f64::INFINITY,
             fewest_tail: f64::INFINITY,
             largest_rhat: 0.0,
+            watched: None,
         };
         // A failed estimate (e.g. a parameter that never moved) counts as no
         // effective draws and an infinite R-hat: never converged.
@@ -101,23 +123,62 @@ impl ConvergenceCheck {
         check
     }
 
-    /// The smaller of the bulk and tail counts.
+    /// The smaller of the parameters' bulk and tail counts.
     pub fn fewest(&self) -> f64 {
         self.fewest_bulk.min(self.fewest_tail)
     }
 
-    /// Whether the rule is met.
-    pub fn met(&self, rule: &Convergence) -> bool {
+    /// Whether the parameters meet the rule (enough effective draws, split
+    /// R-hat within its bound), whatever the watched quantities do.
+    pub fn parameters_met(&self, rule: &Convergence) -> bool {
         self.fewest() >= rule.min_effective_draws && self.largest_rhat <= rule.max_split_rhat
     }
 
-    /// Steps the run would need at the current rate: effective draws grow
-    /// in proportion to the span of the second half of the history, which is
-    /// half the run since the history began.
-    pub fn steps_needed(&self, rule: &Convergence, history_start: u64) -> Option<u64> {
-        let rate = self.fewest() / self.span as f64;
-        (rate.is_finite() && rate > 0.0 && self.span > 0)
-            .then(|| history_start + (2.0 * rule.min_effective_draws / rate).ceil() as u64)
+    /// Whether the watched quantities meet the rule (true when nothing is
+    /// watched).
+    pub fn watched_met(&self, rule: &Convergence) -> bool {
+        self.watched
+            .is_none_or(|w| w.settled(rule.max_watched_error, rule.max_split_rhat))
+    }
+
+    /// Whether the rule is met.
+    pub fn met(&self, rule: &Convergence) -> bool {
+        self.parameters_met(rule) && self.watched_met(rule)
+    }
+
+    /// Steps the run would need at the current rates, or `None` when a rate
+    /// is unknown. The kept span (after the rule's burn-in) must grow until
+    /// the parameters' effective draws, which grow in proportion to it,
+    /// reach the bound; a watched quantity's error falls as one over the
+    /// square root of the span and its series must be 50 autocorrelation
+    /// times long. The span is the run minus its burn-in: with a fixed
+    /// share `f` and a history that began at `history_start` (the ladder's
+    /// freeze of a tempered run) that is `n - max(f n, history_start)`,
+    /// which grows step for step after a freeze (until the share catches
+    /// up); without a share, half the run since the history began.
+    pub fn steps_needed(
+        &self,
+        rule: &Convergence,
+        history_start: u64,
+        burn_in_fraction: Option<f64>,
+    ) -> Option<u64> {
+        if self.span == 0 {
+            return None;
+        }
+        let span = self.span as f64;
+        let mut needed = span * rule.min_effective_draws / self.fewest();
+        if let Some(w) = self.watched {
+            let by_error = span * (w.largest_error / rule.max_watched_error).powi(2);
+            needed = needed.max(by_error).max(MIN_STEPS_PER_TAU * w.largest_tau);
+        }
+        if !(needed.is_finite() && needed >= 0.0) {
+            return None;
+        }
+        let needed = needed.ceil() as u64;
+        Some(match burn_in_fraction {
+            Some(f) => (history_start + needed).max((needed as f64 / (1.0 - f)).ceil() as u64),
+            None => history_start + 2 * needed,
+        })
     }
 }
 

@@ -6,9 +6,11 @@ mod config;
 mod outcome;
 mod saved;
 mod state;
+mod watch;
 
 pub use config::{CheckpointConfig, Convergence, ConvergenceCheck, RunConfig};
 pub use outcome::{Progress, RunControl, RunDiagnostics, RunResult, RunStatus, StuckWalker};
+pub use watch::{KeptDraws, Watch, WatchedCheck, WatchedDiagnostics, WatchedSeries};
 
 use std::path::Path;
 use std::sync::atomic::Ordering;
@@ -277,7 +279,13 @@ fn drive_steps<D: LogDensity + ?Sized>(
 
         if let Some(conv) = &config.convergence {
             if state.ladder.frozen && step >= state.next_check {
-                check_convergence(state, conv, config.burn_in_fraction, &mut workspace);
+                check_convergence(
+                    state,
+                    conv,
+                    config.burn_in_fraction,
+                    &mut workspace,
+                    control.watch.as_deref_mut(),
+                );
             }
         }
 
@@ -311,5 +319,5 @@ fn drive_steps<D: LogDensity + ?Sized>(
     }
     write_checkpoint(config, moves, state, samples, ladder_store.as_deref_mut())?;
     samples.sync()?;
-    finish(config, state, status, ladder_store)
+    finish(config, state, status, ladder_store, control.watch)
 }

@@ -10,8 +10,9 @@ use serde::{Deserialize, Serialize};
 
 use super::config::{Convergence, ConvergenceCheck, RunConfig};
 use super::state::State;
+use super::watch::{measure_watched, KeptDraws, Watch, WatchedDiagnostics};
 use super::LadderStore;
-use crate::diagnostics::{ess_bulk, ess_tail, split_rhat, AutocorrEstimator};
+use crate::diagnostics::{ess_bulk, ess_tail, split_rhat, AutocorrEstimator, DiagnosticsWorkspace};
 use crate::error::SamplerError;
 use crate::storage::{for_each_record, SampleSink};
 use crate::tempering::TemperedLogLikelihoods;
@@ -47,6 +48,10 @@ pub struct RunControl<'a> {
     pub progress: Option<&'a mut dyn FnMut(&Progress)>,
     /// When set to true (e.g. by a Ctrl-C handler) the run checkpoints and returns.
     pub cancel: Option<Arc<AtomicBool>>,
+    /// Quantities the stopping rule judges beside the parameters, also
+    /// reported in the final diagnostics. A resumed run needs the same watch
+    /// to stop where an uninterrupted one would.
+    pub watch: Option<&'a mut dyn Watch>,
 }
 
 /// Why the run ended.
@@ -107,6 +112,10 @@ pub struct RunDiagnostics {
     /// What the last check of the stopping rule found (none without a rule
     /// or before the history was long enough).
     pub last_check: Option<ConvergenceCheck>,
+    /// Diagnostics of the watched quantities after burn-in (none watched:
+    /// empty, and left out of the serialised form).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub watched: Vec<WatchedDiagnostics>,
 }
 
 /// What a run returns; the samples themselves are in the sink.
@@ -144,7 +153,7 @@ pub(super) fn progress_report(
     let elapsed = started.elapsed();
     let target_steps = match (&config.convergence, &state.last_check) {
         (Some(rule), Some(check)) => check
-            .steps_needed(rule, state.history.start)
+            .steps_needed(rule, state.history.start, config.burn_in_fraction)
             .map(|s| s.min(config.max_steps)),
         _ => None,
     };
@@ -172,6 +181,7 @@ pub(super) fn finish(
     state: &State,
     status: RunStatus,
     ladder_store: Option<&mut LadderStore>,
+    watch: Option<&mut (dyn Watch + '_)>,
 ) -> Result<RunResult, SamplerError> {
     let mut warnings = Vec::new();
     let cold = state.cold();
@@ -210,6 +220,14 @@ pub(super) fn finish(
         ess_b.push(ess_bulk(draws, n_used, h.n_walkers));
         ess_t.push(ess_tail(draws, n_used, h.n_walkers));
     }
+    let watched = match watch {
+        Some(watch) if n_used >= 8 => measure_watched(
+            watch,
+            &KeptDraws::new(h, first),
+            &mut DiagnosticsWorkspace::new(),
+        ),
+        _ => Vec::new(),
+    };
     let tau_max = tau
         .iter()
         .cloned()
@@ -270,9 +288,25 @@ pub(super) fn finish(
                 )
             },
         );
+        let watched = state
+            .last_check
+            .and_then(|c| c.watched.map(|w| (c, w)))
+            .filter(|(c, _)| !c.watched_met(rule))
+            .map_or_else(String::new, |(_, w)| {
+                format!(
+                    "; of the {} watched quantities (e.g. the share of draws in each mode) the \
+                     least settled mean was known to +- {:.3} (asked: {}) from an ensemble-mean \
+                     series {} 50 autocorrelation times of {:.0} steps long",
+                    w.count,
+                    w.largest_error,
+                    rule.max_watched_error,
+                    if w.long_enough { "over" } else { "not yet" },
+                    w.largest_tau
+                )
+            });
         warnings.push(format!(
-            "reached the step cap of {} steps before every parameter had enough effective \
-             draws: {found}; the intervals may be too narrow: raise max_steps and resume",
+            "reached the step cap of {} steps before the stopping rule was met: \
+             {found}{watched}; the intervals may be too narrow: raise max_steps and resume",
             config.max_steps
         ));
     }
@@ -335,6 +369,7 @@ pub(super) fn finish(
             history_thin: h.thin,
             history_len: n_used,
             last_check: state.last_check,
+            watched,
         },
         betas,
         swap_acceptance: state.ladder.acceptance(),

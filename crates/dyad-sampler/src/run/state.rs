@@ -2,6 +2,7 @@
 //! stopping rule's and the burn-in's book-keeping on it.
 
 use super::config::{Convergence, ConvergenceCheck, RunConfig};
+use super::watch::{measure_watched, KeptDraws, Watch, WatchedCheck};
 use crate::density::LogDensity;
 use crate::diagnostics::{AutocorrEstimator, DiagnosticsWorkspace};
 use crate::ensemble::{Rung, Walker};
@@ -168,6 +169,7 @@ pub(super) fn check_convergence(
     rule: &Convergence,
     burn_in_fraction: Option<f64>,
     workspace: &mut DiagnosticsWorkspace,
+    watch: Option<&mut (dyn Watch + '_)>,
 ) {
     let h = &state.history;
     state.next_check = state.step + rule.min_check_interval.max(state.step / 10);
@@ -188,13 +190,17 @@ pub(super) fn check_convergence(
     if kept < 8 {
         return;
     }
-    let check = ConvergenceCheck::measure(
+    let mut check = ConvergenceCheck::measure(
         state.step,
         kept as u64 * h.thin,
         (kept, h.n_walkers, h.dim),
         |p| h.draws(p, first),
         workspace,
     );
+    if let Some(watch) = watch {
+        let watched = measure_watched(watch, &KeptDraws::new(h, first), workspace);
+        check.watched = WatchedCheck::of(&watched);
+    }
     if check.met(rule) {
         state.converged = true;
         state.burn_in = match burn_in_fraction {

@@ -67,6 +67,7 @@ fn allocation_trace(parallel: bool) -> Vec<u64> {
     let control = RunControl {
         progress: Some(&mut record),
         cancel: None,
+        watch: None,
     };
     run(&target, &config, &start, &mut Discard, control).unwrap();
     trace

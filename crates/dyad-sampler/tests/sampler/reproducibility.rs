@@ -125,6 +125,7 @@ fn stop_and_resume(mut c: RunConfig, dim: usize) {
         RunControl {
             progress: Some(&mut cb),
             cancel: Some(cancel),
+            watch: None,
         },
     )
     .unwrap();
