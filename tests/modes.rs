@@ -110,6 +110,10 @@ fn modes_are_labelled_summarised_plotted_and_predicted_separately() {
     let text = fs::read_to_string(run.join("summary.txt")).unwrap();
     assert!(text.contains("span all of them"), "{text}");
     assert!(text.contains("Period mode 2 of"), "{text}");
+    // A tempered run with several modes points to the evidence comparison
+    // for weights to publish (the weights can still be relaxing).
+    assert!(text.contains("compare the periods by evidence"), "{text}");
+    assert!(text.contains("each mode's weight known to 0.01"), "{text}");
 
     // Predict per mode: each mode's median offsets lie close to the
     // position of one of that mode's own draws, and far from a mixture
