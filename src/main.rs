@@ -439,6 +439,9 @@ fn run_batch(args: BatchArgs) -> Result<ExitCode> {
     for (system, reason) in &summary.failed {
         note!("failed: {system}: {reason}");
     }
+    for system in &summary.busy {
+        note!("not run: {system}: another process was running it");
+    }
     Ok(if summary.all_finished() {
         ExitCode::SUCCESS
     } else {

@@ -292,3 +292,34 @@ fn bad_manifest_is_refused_with_file_line_and_column() {
         "nothing is written for a refused manifest"
     );
 }
+
+/// Two processes must not run one system at once (an array submitted
+/// twice): while another process holds a system's lock, a shard leaves that
+/// system alone — no run folder, no record, exit status 1 with the reason —
+/// and runs the rest; once the lock is released the system runs.
+#[test]
+fn a_system_another_process_runs_is_left_alone() {
+    let dir = tempfile::tempdir().unwrap();
+    let manifest = survey_in(dir.path());
+    let base = base_in(dir.path());
+    let output = dir.path().join("out");
+    fs::create_dir_all(output.join("records")).unwrap();
+    // Shard 2 of 2 holds lost-plover (fails at once) and cinder-moth.
+    let held = fs::File::create(output.join("records/cinder-moth.lock")).unwrap();
+    held.try_lock().expect("the test takes the lock first");
+    let (status, text) = status_of(batch(&manifest, &base, &output, &["--shard", "2/2"]));
+    assert_eq!(status.code(), Some(1), "{text}");
+    assert!(
+        text.contains("cinder-moth: another process is running it"),
+        "{text}"
+    );
+    assert!(!output.join("records/cinder-moth.json").exists());
+    assert!(!output.join("systems/cinder-moth").exists());
+    assert!(read(&output.join("records/lost-plover.json")).contains("\"failed\""));
+
+    drop(held);
+    let (status, text) = status_of(batch(&manifest, &base, &output, &["--shard", "2/2"]));
+    assert_eq!(status.code(), Some(1), "lost-plover still fails: {text}");
+    assert!(!text.contains("another process"), "{text}");
+    assert!(read(&output.join("records/cinder-moth.json")).contains("\"finished\""));
+}

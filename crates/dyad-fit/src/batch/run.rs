@@ -45,6 +45,10 @@ impl BatchFolder {
     pub fn run_folder(&self, system: &str) -> PathBuf {
         self.root.join("systems").join(system)
     }
+    /// The lock file of `system` (held while a process runs it).
+    pub fn lock(&self, system: &str) -> PathBuf {
+        self.root.join("records").join(format!("{system}.lock"))
+    }
     /// The record of `system`.
     pub fn record(&self, system: &str) -> PathBuf {
         self.root.join("records").join(format!("{system}.json"))
@@ -135,12 +139,15 @@ pub struct ShardSummary {
     /// The system stopped by the cancel flag, with where it stopped (the
     /// shard stopped there; the systems after it were not started).
     pub stopped: Option<(String, String)>,
+    /// Systems left to another process that was running them at the time
+    /// (the same shard started twice): neither run nor recorded here.
+    pub busy: Vec<String>,
 }
 
 impl ShardSummary {
     /// Whether every system of the shard is finished.
     pub fn all_finished(&self) -> bool {
-        self.failed.is_empty() && self.stopped.is_none()
+        self.failed.is_empty() && self.busy.is_empty() && self.stopped.is_none()
     }
 }
 
@@ -201,6 +208,14 @@ pub fn run_shard(
             summary.stopped = Some((name.clone(), "was not started".to_owned()));
             break;
         }
+        let Some(_lock) = lock_system(&folder, name, observer)? else {
+            observer.warning(&format!(
+                "{name}: another process is running it (the same shard started twice?); left \
+                 to that process"
+            ));
+            summary.busy.push(name.clone());
+            continue;
+        };
         observer.message(&format!("{name} ({} of {}):", done + 1, mine.len()));
         let mut prefixed = Prefixed {
             inner: &mut *observer,
@@ -252,6 +267,39 @@ pub fn run_shard(
         }
     }
     Ok(summary)
+}
+
+/// The advisory lock on one system (`DIR/records/NAME.lock`), held while
+/// this process runs it: two processes must not write one run folder at
+/// once (an array submitted twice, a local run beside a Slurm one). `None`
+/// when another process holds it. The operating system releases the lock
+/// when its holder ends, however it ends (SIGKILL included), so a stale lock
+/// file never blocks a resubmission. On a file system that cannot lock the
+/// system runs unguarded, with a warning.
+fn lock_system(
+    folder: &BatchFolder,
+    system: &str,
+    observer: &mut dyn Observer,
+) -> Result<Option<Option<fs::File>>> {
+    let path = folder.lock(system);
+    let file = fs::OpenOptions::new()
+        .create(true)
+        .truncate(false)
+        .write(true)
+        .open(&path)
+        .with_context(|| format!("opening the lock file {}", path.display()))?;
+    match file.try_lock() {
+        Ok(()) => Ok(Some(Some(file))),
+        Err(fs::TryLockError::WouldBlock) => Ok(None),
+        Err(fs::TryLockError::Error(e)) => {
+            observer.warning(&format!(
+                "{system}: could not lock {} ({e}); running it without a guard against a \
+                 second process",
+                path.display()
+            ));
+            Ok(Some(None))
+        }
+    }
 }
 
 /// What became of one system in this shard run.
