@@ -208,14 +208,15 @@ pub fn run_shard(
             summary.stopped = Some((name.clone(), "was not started".to_owned()));
             break;
         }
-        let Some(_lock) = lock_system(&folder, name, observer)? else {
+        let lock = lock_system(&folder, name, observer)?;
+        if matches!(lock, SystemLock::Busy) {
             observer.warning(&format!(
                 "{name}: another process is running it (the same shard started twice?); left \
                  to that process"
             ));
             summary.busy.push(name.clone());
             continue;
-        };
+        }
         observer.message(&format!("{name} ({} of {}):", done + 1, mine.len()));
         let mut prefixed = Prefixed {
             inner: &mut *observer,
@@ -271,16 +272,23 @@ pub fn run_shard(
 
 /// The advisory lock on one system (`DIR/records/NAME.lock`), held while
 /// this process runs it: two processes must not write one run folder at
-/// once (an array submitted twice, a local run beside a Slurm one). `None`
-/// when another process holds it. The operating system releases the lock
-/// when its holder ends, however it ends (SIGKILL included), so a stale lock
-/// file never blocks a resubmission. On a file system that cannot lock the
-/// system runs unguarded, with a warning.
+/// once (an array submitted twice, a local run beside a Slurm one). The
+/// operating system releases the lock when its holder ends, however it ends
+/// (SIGKILL included), so a stale lock file never blocks a resubmission.
+enum SystemLock {
+    /// Ours until the file is dropped (kept for its lock, never read).
+    Held { _file: fs::File },
+    /// The file system cannot lock: the system runs unguarded (warned).
+    Unguarded,
+    /// Another process holds it.
+    Busy,
+}
+
 fn lock_system(
     folder: &BatchFolder,
     system: &str,
     observer: &mut dyn Observer,
-) -> Result<Option<Option<fs::File>>> {
+) -> Result<SystemLock> {
     let path = folder.lock(system);
     let file = fs::OpenOptions::new()
         .create(true)
@@ -289,15 +297,15 @@ fn lock_system(
         .open(&path)
         .with_context(|| format!("opening the lock file {}", path.display()))?;
     match file.try_lock() {
-        Ok(()) => Ok(Some(Some(file))),
-        Err(fs::TryLockError::WouldBlock) => Ok(None),
+        Ok(()) => Ok(SystemLock::Held { _file: file }),
+        Err(fs::TryLockError::WouldBlock) => Ok(SystemLock::Busy),
         Err(fs::TryLockError::Error(e)) => {
             observer.warning(&format!(
                 "{system}: could not lock {} ({e}); running it without a guard against a \
                  second process",
                 path.display()
             ));
-            Ok(Some(None))
+            Ok(SystemLock::Unguarded)
         }
     }
 }
