@@ -193,12 +193,20 @@ pub fn write_text(path: &Path, text: &str) -> Result<()> {
     .with_context(|| format!("writing {}", path.display()))
 }
 
+/// The period window of a run of `dyad periods` (`period-window.json`).
+#[derive(Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PeriodWindow {
+    period_min_days: f64,
+    period_max_days: f64,
+}
+
 /// Records that a run samples only periods in `[lo, hi]` days.
 pub fn write_window(files: &RunFiles, lo_days: f64, hi_days: f64) -> Result<()> {
-    let text = serde_json::to_string_pretty(&serde_json::json!({
-        "period_min_days": lo_days,
-        "period_max_days": hi_days,
-    }))?;
+    let text = serde_json::to_string_pretty(&PeriodWindow {
+        period_min_days: lo_days,
+        period_max_days: hi_days,
+    })?;
     write_text(&files.window(), &text)
 }
 
@@ -208,14 +216,8 @@ pub fn read_window(files: &RunFiles) -> Result<Option<(f64, f64)>> {
     if !path.exists() {
         return Ok(None);
     }
-    let text = fs::read_to_string(&path).with_context(|| format!("reading {}", path.display()))?;
-    let v: serde_json::Value = serde_json::from_str(&text)
-        .with_context(|| format!("{}: not valid JSON", path.display()))?;
-    match (v["period_min_days"].as_f64(), v["period_max_days"].as_f64()) {
-        (Some(lo), Some(hi)) => Ok(Some((lo, hi))),
-        _ => bail!(
-            "{}: expected period_min_days and period_max_days",
-            path.display()
-        ),
-    }
+    let w: PeriodWindow = read_json(&path, "period window record", || {
+        format!("reading {}", path.display())
+    })?;
+    Ok(Some((w.period_min_days, w.period_max_days)))
 }
