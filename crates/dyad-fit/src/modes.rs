@@ -8,8 +8,8 @@
 use dyad_common::quantile::median_of_finite as median;
 use dyad_model::likelihood::Model;
 use dyad_report::PosteriorDraws;
-use dyad_sampler::diagnostics::autocorr_time;
-use dyad_sampler::{KeptDraws, Watch, WatchedSeries};
+use dyad_sampler::diagnostics::DiagnosticsWorkspace;
+use dyad_sampler::{KeptDraws, Watch, WatchedDiagnostics, WatchedSeries};
 
 use crate::posterior::Draws;
 
@@ -113,21 +113,21 @@ fn weight_error(labels: &[usize], k: usize, walkers: usize) -> f64 {
     if records < 2 {
         return f64::NAN;
     }
-    let share: Vec<f64> = labels[..records * walkers]
-        .chunks_exact(walkers)
-        .map(|r| r.iter().filter(|&&l| l == k).count() as f64 / walkers as f64)
-        .collect();
-    let n = records as f64;
-    let mean = share.iter().sum::<f64>() / n;
-    let var = share.iter().map(|f| (f - mean).powi(2)).sum::<f64>() / n;
-    if var == 0.0 {
-        let all_same = labels.iter().all(|&l| l == labels[0]);
-        return if all_same { 0.0 } else { f64::INFINITY };
-    }
-    match autocorr_time(&share, records, 1) {
-        Ok(a) if a.tau.is_finite() => (var * a.tau.max(1.0) / n).sqrt(),
-        _ => f64::INFINITY,
-    }
+    // The same error the stopping rule judges: of the indicator's
+    // ensemble-mean series, i.e. of the share of walkers in the mode.
+    let indicator = WatchedSeries {
+        name: String::new(),
+        values: labels[..records * walkers]
+            .iter()
+            .map(|&l| if l == k { 1.0 } else { 0.0 })
+            .collect(),
+    };
+    WatchedDiagnostics::measure(
+        &indicator,
+        (records, walkers, 1),
+        &mut DiagnosticsWorkspace::new(),
+    )
+    .standard_error
 }
 
 /// Index of the group nearest to `l` (0 inside a range).
@@ -143,11 +143,12 @@ fn nearest_group(groups: &[[f64; 2]], l: f64) -> usize {
 /// What the stopping rule watches of the period modes: at each check the
 /// kept draws' ln P are grouped as [`split_modes`] groups them, and every
 /// mode gives one series, 1 for a draw in it and 0 otherwise (so its mean
-/// is the mode's weight). The sampler then waits until each indicator has
-/// the effective draws and the split R-hat it asks of a parameter, i.e.
-/// until the walkers agree on the weights and the weights' Monte Carlo
-/// error is about `sqrt(w (1 - w) / N_eff)` or less. With one mode there is
-/// nothing to watch.
+/// is the mode's weight). The sampler then waits until each weight's Monte
+/// Carlo error (from the share of walkers in the mode, step by step) is
+/// within `[sampler] mode_weight_error`, that share does not drift, and the
+/// indicator's split R-hat is within the parameters' bound
+/// ([`WatchedDiagnostics::settled`]). With one mode there is nothing to
+/// watch.
 pub struct ModeWatch {
     /// Index of the period coordinate and whether it is ln P (else P).
     period: Option<(usize, bool)>,
